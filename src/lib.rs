@@ -1,0 +1,11 @@
+//! knotwise: partially linear additive models with B-spline smooth terms, fitted classically and
+//! robustly from a declarative study spec, with a reproducible report.
+
+pub mod basis;
+pub mod data;
+pub mod dist;
+pub mod error;
+pub mod linalg;
+pub mod robust;
+pub mod spec;
+pub mod termination;

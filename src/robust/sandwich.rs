@@ -1,0 +1,1 @@
+//! Huber's (1981) sandwich covariance with small-sample correction.

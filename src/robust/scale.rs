@@ -1,0 +1,1 @@
+//! Scale estimators: MAD about zero and the bisquare M-scale.
