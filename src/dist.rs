@@ -23,3 +23,9 @@ pub fn t_quantile(p: f64, df: f64) -> f64 {
     let _ = (p, df);
     todo!("robust helper")
 }
+
+/// P(|Z| > z) for standard normal Z.
+pub fn two_sided_normal_tail(z: f64) -> f64 {
+    let _ = z;
+    todo!("robust helper")
+}

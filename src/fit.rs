@@ -1,0 +1,296 @@
+//! Fits on a [`Design`]: classical least squares (QR) and robust M/MM fits, each with covariance,
+//! intervals and how it stopped; curves with pointwise bands for the smooth terms.
+//!
+//! Fitting is a pure function `(design, method, options) -> Fit`; nothing here reads or writes files.
+
+use crate::design::Design;
+use crate::dist;
+use crate::linalg::{self, LinalgError};
+use crate::robust::irls::{self, IrlsOptions};
+use crate::robust::loss::{Bisquare, Huber, Loss};
+use crate::robust::sandwich;
+use crate::robust::sest::{self, SEstimate, SOptions};
+use crate::robust::RobustError;
+use crate::termination::Termination;
+
+/// Why a fit could not be computed.
+#[derive(Debug, Clone, PartialEq)]
+pub enum FitError {
+    /// Column `column` of the design is a linear combination of `aliased_with` (design column indices).
+    RankDeficient { column: usize, aliased_with: Vec<usize> },
+    /// Fewer rows than columns.
+    TooFewRows { rows: usize, columns: usize },
+    /// The fit met a non-finite value.
+    NonFinite,
+    /// No non-singular subsample could be drawn for the S-estimate.
+    NoSubsample { tried: usize },
+}
+
+impl From<LinalgError> for FitError {
+    fn from(e: LinalgError) -> Self {
+        match e {
+            LinalgError::RankDeficient { column, aliased_with } => FitError::RankDeficient { column, aliased_with },
+            LinalgError::TooFewRows { rows, columns } => FitError::TooFewRows { rows, columns },
+            LinalgError::NonFinite => FitError::NonFinite,
+        }
+    }
+}
+
+impl From<RobustError> for FitError {
+    fn from(e: RobustError) -> Self {
+        match e {
+            RobustError::TooFewRows { rows, columns } => FitError::TooFewRows { rows, columns },
+            RobustError::AllSubsamplesSingular { tried } => FitError::NoSubsample { tried },
+            RobustError::NonFinite => FitError::NonFinite,
+        }
+    }
+}
+
+/// The robust method, checked once (never a string compared at run time).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum RobustMethod {
+    /// MM: bisquare IRLS with tuning `c`, from the S-estimate, its scale held fixed (Yohai 1987).
+    Mm { c: f64 },
+    /// Huber IRLS with tuning `k` from the S-estimate, its scale held fixed.
+    HuberFixedScale { k: f64 },
+    /// Huber from least squares, MAD scale re-estimated each step: the joint fixed point (Huber 1981).
+    HuberJoint { k: f64 },
+}
+
+impl RobustMethod {
+    pub fn loss_name(&self) -> &'static str {
+        match self {
+            RobustMethod::Mm { .. } => "bisquare",
+            _ => "huber",
+        }
+    }
+    pub fn tuning(&self) -> f64 {
+        match *self {
+            RobustMethod::Mm { c } => c,
+            RobustMethod::HuberFixedScale { k } | RobustMethod::HuberJoint { k } => k,
+        }
+    }
+    /// True when the method needs an S-estimate (start and scale).
+    pub fn needs_s_estimate(&self) -> bool {
+        !matches!(self, RobustMethod::HuberJoint { .. })
+    }
+    /// The loss as a trait object.
+    pub fn loss(&self) -> Box<dyn Loss> {
+        match *self {
+            RobustMethod::Mm { c } => Box::new(Bisquare { c }),
+            RobustMethod::HuberFixedScale { k } | RobustMethod::HuberJoint { k } => Box::new(Huber { k }),
+        }
+    }
+}
+
+/// How intervals are formed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum IntervalKind {
+    /// Student t with n − p degrees of freedom (classical).
+    StudentT,
+    /// Normal (robust, asymptotic).
+    Normal,
+}
+
+/// A fitted model on one design.
+#[derive(Debug, Clone)]
+pub struct Fit {
+    pub coef: Vec<f64>,
+    /// Covariance of the coefficients, p × p row-major.
+    pub cov: Vec<f64>,
+    pub std_errors: Vec<f64>,
+    pub lower: Vec<f64>,
+    pub upper: Vec<f64>,
+    pub fitted: Vec<f64>,
+    pub residuals: Vec<f64>,
+    /// σ̂: RSS/(n − p) square-rooted (classical) or the robust scale.
+    pub scale: f64,
+    pub termination: Termination,
+    /// Final IRLS weights (robust fits).
+    pub weights: Option<Vec<f64>>,
+    pub rss: f64,
+    pub r_squared: f64,
+    pub interval: IntervalKind,
+    /// Quantile used for the 95% intervals and bands.
+    pub critical: f64,
+}
+
+impl Fit {
+    /// Whether coefficient j's 95% interval excludes zero.
+    pub fn significant(&self, j: usize) -> bool {
+        self.lower[j] > 0.0 || self.upper[j] < 0.0
+    }
+}
+
+fn total_sum_of_squares(y: &[f64]) -> f64 {
+    let mean = y.iter().sum::<f64>() / y.len().max(1) as f64;
+    y.iter().map(|v| (v - mean) * (v - mean)).sum()
+}
+
+fn finish(design: &Design, coef: Vec<f64>, cov: Vec<f64>, scale: f64, critical: f64) -> (Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>) {
+    let p = design.p;
+    let std_errors: Vec<f64> = (0..p).map(|j| cov[j * p + j].max(0.0).sqrt()).collect();
+    let lower = (0..p).map(|j| coef[j] - critical * std_errors[j]).collect();
+    let upper = (0..p).map(|j| coef[j] + critical * std_errors[j]).collect();
+    let mut residuals = vec![0.0; design.n];
+    linalg::residuals(&design.x, design.n, p, &design.y, &coef, &mut residuals);
+    let fitted = design.y.iter().zip(&residuals).map(|(y, r)| y - r).collect();
+    let _ = scale;
+    (coef, cov, std_errors, lower, upper, fitted, residuals)
+}
+
+/// Classical least squares by Householder QR; σ̂² = RSS/(n − p); t-based 95% intervals (DESIGN.md §4.2).
+pub fn classical(design: &Design) -> Result<Fit, FitError> {
+    let (n, p) = (design.n, design.p);
+    if n <= p {
+        return Err(FitError::TooFewRows { rows: n, columns: p });
+    }
+    let ls = linalg::qr_solve(&design.x, n, p, &design.y, None)?;
+    let df = (n - p) as f64;
+    let sigma2 = ls.rss / df;
+    let inv = ls.xtx_inverse();
+    let cov: Vec<f64> = inv.iter().map(|v| v * sigma2).collect();
+    let critical = dist::t_quantile(0.975, df);
+    let (coef, cov, std_errors, lower, upper, fitted, residuals) = finish(design, ls.coef, cov, sigma2.sqrt(), critical);
+    let tss = total_sum_of_squares(&design.y);
+    let r_squared = if tss > 0.0 { 1.0 - ls.rss / tss } else { 1.0 };
+    Ok(Fit {
+        coef,
+        cov,
+        std_errors,
+        lower,
+        upper,
+        fitted,
+        residuals,
+        scale: sigma2.sqrt(),
+        termination: Termination::Direct,
+        weights: None,
+        rss: ls.rss,
+        r_squared,
+        interval: IntervalKind::StudentT,
+        critical,
+    })
+}
+
+/// The S-estimate of a design (the robust start and scale).
+pub fn s_estimate(design: &Design, options: &SOptions) -> Result<SEstimate, FitError> {
+    Ok(sest::s_estimate(&design.x, design.n, design.p, &design.y, options)?)
+}
+
+/// A robust fit on `design`. For S-started methods `start` gives the starting coefficients and
+/// `scale` the scale held fixed (the S-scale, or the shared grid scale of DESIGN.md §4.5).
+pub fn robust(
+    design: &Design,
+    method: RobustMethod,
+    start: Option<&[f64]>,
+    scale: f64,
+    options: &IrlsOptions,
+) -> Result<Fit, FitError> {
+    let (n, p) = (design.n, design.p);
+    if n <= p {
+        return Err(FitError::TooFewRows { rows: n, columns: p });
+    }
+    let loss = method.loss();
+    let est = match method {
+        RobustMethod::HuberJoint { k } => irls::huber_joint(&design.x, n, p, &design.y, k, options)?,
+        _ => {
+            let zeros = vec![0.0; p];
+            let start = start.unwrap_or(&zeros);
+            irls::m_fixed_scale(&design.x, n, p, &design.y, start, scale, loss.as_ref(), options)?
+        }
+    };
+    let ls = linalg::qr_solve(&design.x, n, p, &design.y, None)?;
+    let inv = ls.xtx_inverse();
+    let cov = if est.scale > 0.0 {
+        sandwich::huber_sandwich(&design.x, n, p, &est.residuals, est.scale, loss.as_ref(), &inv)
+    } else {
+        vec![0.0; p * p]
+    };
+    let critical = dist::normal_quantile(0.975);
+    let (coef, cov, std_errors, lower, upper, fitted, residuals) = finish(design, est.coef, cov, est.scale, critical);
+    let rss = residuals.iter().map(|r| r * r).sum::<f64>();
+    let tss = total_sum_of_squares(&design.y);
+    let r_squared = if tss > 0.0 { 1.0 - rss / tss } else { 1.0 };
+    Ok(Fit {
+        coef,
+        cov,
+        std_errors,
+        lower,
+        upper,
+        fitted,
+        residuals,
+        scale: est.scale,
+        termination: est.termination,
+        weights: Some(est.weights),
+        rss,
+        r_squared,
+        interval: IntervalKind::Normal,
+        critical,
+    })
+}
+
+/// A smooth term's estimated curve on a grid with its pointwise 95% band.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Curve {
+    pub x: Vec<f64>,
+    pub value: Vec<f64>,
+    pub lower: Vec<f64>,
+    pub upper: Vec<f64>,
+}
+
+/// Evaluate smooth term `j`'s curve g_j at `grid` with its band from the term's covariance block.
+pub fn curve(design: &Design, fit: &Fit, j: usize, grid: &[f64]) -> Curve {
+    let enc = &design.smooth[j];
+    let span = match design.smooth_span(j) {
+        Some(s) => s.clone(),
+        None => return Curve { x: vec![], value: vec![], lower: vec![], upper: vec![] },
+    };
+    let m = span.len;
+    let p = design.p;
+    let mut scratch = vec![0.0; enc.basis.degree + 1];
+    let mut b = vec![0.0; m];
+    let mut out = Curve { x: grid.to_vec(), value: vec![], lower: vec![], upper: vec![] };
+    for &g in grid {
+        enc.eval_centred(g, &mut scratch, &mut b);
+        let mut v = 0.0;
+        for a in 0..m {
+            v += b[a] * fit.coef[span.start + a];
+        }
+        let mut var = 0.0;
+        for a in 0..m {
+            let row = (span.start + a) * p + span.start;
+            let mut s = 0.0;
+            for c in 0..m {
+                s += fit.cov[row + c] * b[c];
+            }
+            var += b[a] * s;
+        }
+        let se = var.max(0.0).sqrt();
+        out.value.push(v);
+        out.lower.push(v - fit.critical * se);
+        out.upper.push(v + fit.critical * se);
+    }
+    out
+}
+
+/// Evenly spaced grid of `count` points over a smooth term's range.
+pub fn curve_grid(design: &Design, j: usize, count: usize) -> Vec<f64> {
+    let (lo, hi) = design.smooth[j].basis.range();
+    if count < 2 {
+        return vec![lo];
+    }
+    (0..count).map(|i| lo + (hi - lo) * (i as f64) / ((count - 1) as f64)).collect()
+}
+
+/// The value of smooth term j's curve at each design row (its partial fit), for partial residuals.
+pub fn partial_fit(design: &Design, fit: &Fit, j: usize) -> Vec<f64> {
+    match design.smooth_span(j) {
+        Some(span) => (0..design.n)
+            .map(|i| {
+                let row = design.row(i);
+                (0..span.len).map(|a| row[span.start + a] * fit.coef[span.start + a]).sum()
+            })
+            .collect(),
+        None => vec![0.0; design.n],
+    }
+}

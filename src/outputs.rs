@@ -1,0 +1,344 @@
+//! Assemble the machine-readable outputs (results.json, rows.csv) of an [`Analysis`] and its digest.
+
+use crate::analysis::Analysis;
+use crate::fit::{self, RobustMethod};
+use crate::provenance;
+use crate::results::*;
+use crate::select::{self, SearchKind};
+use crate::termination::Termination;
+
+/// Inputs to provenance that come from files, not from the analysis.
+pub struct Inputs<'a> {
+    pub spec_bytes: &'a [u8],
+    pub resolved_yaml: &'a str,
+}
+
+fn curves_of(design: &crate::design::Design, f: &crate::fit::Fit) -> Vec<crate::fit::Curve> {
+    (0..design.smooth.len()).map(|t| fit::curve(design, f, t, &fit::curve_grid(design, t, 200))).collect()
+}
+
+fn method_name(m: RobustMethod) -> &'static str {
+    match m {
+        RobustMethod::Mm { .. } => "mm-bisquare",
+        RobustMethod::HuberFixedScale { .. } => "huber-fixed-s-scale",
+        RobustMethod::HuberJoint { .. } => "huber-joint-mad-scale",
+    }
+}
+
+fn sizes_of(a: &Analysis, sizes: &[usize]) -> Sizes {
+    Sizes::from_pairs(a.terms.smooth.iter().map(|s| s.column.as_str()).zip(sizes.iter().copied()))
+}
+
+/// Warnings that belong at the top of the report and in results.json.
+pub fn warnings(a: &Analysis) -> Vec<String> {
+    let mut w = Vec::new();
+    let sel = &a.selection;
+    let fits = [("classical", &sel.classical_fit), ("robust", &sel.robust_fit)];
+    for (name, f) in fits {
+        if !f.termination.is_ok() {
+            w.push(format!("The {name} fit {}. Its numbers are not a converged solution.", f.termination.describe()));
+        }
+    }
+    if let Some(s) = &sel.s_estimate {
+        if !s.termination.is_ok() {
+            w.push(format!("The S-estimate start {}.", s.termination.describe()));
+        }
+    }
+    let cz = &sel.points[sel.classical_choice].sizes;
+    let rz = &sel.points[sel.robust_choice].sizes;
+    for (who, sizes) in [("classical", cz), ("robust", rz)] {
+        let edge = select::at_edge(&a.grid, sizes);
+        for (t, e) in edge.iter().enumerate() {
+            if *e {
+                w.push(format!(
+                    "The {who} choice for `{}` ({} basis functions) sits at the edge of its grid; a wider grid may choose differently.",
+                    a.terms.smooth[t].column, sizes[t]
+                ));
+            }
+        }
+    }
+    let skipped = sel.points.iter().filter(|p| p.skipped.is_some()).count();
+    if skipped > 0 {
+        w.push(format!("{skipped} grid point(s) were impossible for these data and skipped (see the selection section)."));
+    }
+    if !a.frame.dropped.is_empty() {
+        w.push(format!("{} row(s) were dropped for missing values (listed in the data section).", a.frame.dropped.len()));
+    }
+    let s = &a.sensitivity;
+    let expected = s.expected_false;
+    if (s.flagged.len() as f64) > 2.0 * expected + 3.0 {
+        w.push(format!(
+            "{} rows are flagged as outliers, more than the {:.1} expected by chance under normal errors.",
+            s.flagged.len(),
+            expected
+        ));
+    }
+    for msg in &a.frame.warnings {
+        w.push(msg.clone());
+    }
+    w
+}
+
+/// Build results.json's content (digest filled in).
+pub fn results(a: &Analysis, inputs: &Inputs) -> Results {
+    let sel = &a.selection;
+    let sens = &a.sensitivity;
+    let cd = &sel.classical_design;
+    let rd = &sel.robust_design;
+    let mut classical = fit_out("least-squares", "squared", None, cd, &sel.classical_fit, &curves_of(cd, &sel.classical_fit));
+    classical.method = "least-squares-qr".into();
+    let m = a.plan.method;
+    let mut robust = fit_out(method_name(m), m.loss_name(), Some(m.tuning()), rd, &sel.robust_fit, &curves_of(rd, &sel.robust_fit));
+    if let Some(s) = &sel.s_estimate {
+        let src = if sel.scale_source.is_empty() { sel.points[sel.robust_choice].sizes.clone() } else { sel.scale_source.clone() };
+        robust.start = Some(StartOut {
+            kind: if sel.shared_scale.is_some() && src != sel.points[sel.robust_choice].sizes {
+                "s-estimate of the richest grid model; this size started from its MM fit projected onto this basis".into()
+            } else {
+                "s-estimate".into()
+            },
+            s_scale: finite(s.scale),
+            s_basis_sizes: sizes_of(a, &src),
+            s_coefficients: s.coef.clone(),
+            subsamples: s.subsamples_drawn,
+            singular_redraws: s.singular_redraws,
+            search_rows: s.search_rows,
+            seed: a.study.seed,
+            termination: s.termination,
+        });
+    }
+    let without = sens.classical_without.as_ref().map(|(d, f)| {
+        let mut o = fit_out("least-squares-qr", "squared", None, d, f, &curves_of(d, f));
+        o.method = "least-squares-qr-without-flagged".into();
+        o
+    });
+    let robust_without = sens.robust_without.as_ref().map(|f| {
+        let keep_design = rd; // curves use the same encodings
+        let mut o = fit_out(method_name(m), m.loss_name(), Some(m.tuning()), keep_design, f, &curves_of(keep_design, f));
+        o.n = f.residuals.len();
+        o
+    });
+
+    let selection = sel
+        .points
+        .iter()
+        .enumerate()
+        .map(|(i, p)| {
+            let mut chosen_by = Vec::new();
+            if i == sel.classical_choice {
+                chosen_by.push("classical");
+            }
+            if i == sel.robust_choice {
+                chosen_by.push("robust");
+            }
+            PointOut {
+                basis_sizes: sizes_of(a, &p.sizes),
+                p: p.p,
+                bic: p.bic.and_then(finite),
+                rbic: p.rbic.and_then(finite),
+                chosen_by,
+                skipped: p.skipped.clone(),
+            }
+        })
+        .collect();
+    let edge_names = |sizes: &[usize]| -> Vec<String> {
+        select::at_edge(&a.grid, sizes)
+            .iter()
+            .enumerate()
+            .filter(|(_, e)| **e)
+            .map(|(t, _)| a.terms.smooth[t].column.clone())
+            .collect()
+    };
+    let selection_method = SelectionMethodOut {
+        search: match sel.search {
+            SearchKind::Shared => "shared",
+            SearchKind::Product => "product",
+            SearchKind::CoordinateWise => "coordinate-wise",
+            SearchKind::NoSmooth => "none",
+        }
+        .into(),
+        bic_penalty: a.grid.penalty,
+        robust_scale: match a.plan.scale_mode {
+            select::ScaleMode::Shared => "shared",
+            select::ScaleMode::PerSize => "per-size",
+        }
+        .into(),
+        shared_scale: sel.shared_scale.and_then(finite),
+        scale_from_basis_sizes: sizes_of(a, &sel.scale_source),
+        classical_at_edge: edge_names(&sel.points[sel.classical_choice].sizes),
+        robust_at_edge: edge_names(&sel.points[sel.robust_choice].sizes),
+    };
+
+    let rf = &sel.robust_fit;
+    let scale = rf.scale;
+    let weights = rf.weights.clone().unwrap_or_default();
+    let flagged = sens
+        .flagged
+        .iter()
+        .map(|&i| FlagOut {
+            row: a.frame.ids[i].clone(),
+            line: a.frame.lines[i],
+            residual: finite(rf.residuals[i]),
+            scaled_residual: finite(rf.residuals[i] / scale),
+            weight: weights.get(i).copied().and_then(finite),
+        })
+        .collect();
+    let b = &sens.boxplot;
+    let outliers = OutliersOut {
+        cutoff: a.study.outliers.cutoff,
+        expected_false: sens.expected_false,
+        n_flagged: sens.flagged.len(),
+        flagged,
+        boxplot: BoxplotOut {
+            quartiles: "linear interpolation of order statistics (Hyndman & Fan type 7)",
+            q1: finite(b.q1),
+            median: finite(b.median),
+            q3: finite(b.q3),
+            lower_fence: finite(b.lower_fence),
+            upper_fence: finite(b.upper_fence),
+            n_outside: b.outside.len(),
+        },
+        leverage_threshold: sens.leverage.threshold,
+        high_leverage: sens
+            .leverage
+            .high
+            .iter()
+            .map(|&i| LeverageOut { row: a.frame.ids[i].clone(), line: a.frame.lines[i], leverage: finite(sens.leverage.hat[i]) })
+            .collect(),
+    };
+    let conclusion_changes = sens.coefficients.iter().any(|c| c.sign_changes || c.significance_changes);
+    let sensitivity = SensitivityOut {
+        coefficients: sens
+            .coefficients
+            .iter()
+            .map(|c| CoefCompareOut {
+                name: c.name.clone(),
+                classical: c.values[0].and_then(|v| finite(v.0)),
+                robust: c.values[1].and_then(|v| finite(v.0)),
+                classical_without_flagged: c.values[2].and_then(|v| finite(v.0)),
+                sign_changes: c.sign_changes,
+                significance_changes: c.significance_changes,
+            })
+            .collect(),
+        curves: sens
+            .curves
+            .iter()
+            .map(|c| CurveMoveOut {
+                column: c.column.clone(),
+                classical_move: finite(c.classical_move),
+                without_flagged_move: c.without_flagged_move.and_then(finite),
+            })
+            .collect(),
+        classical_rerun_basis_sizes: sens.rerun_choice.map(|i| sizes_of(a, &sens.rerun_points[i].sizes)),
+        classical_rerun_changes_size: sens.rerun_choice.map(|i| sens.rerun_points[i].sizes != sel.points[sel.classical_choice].sizes),
+        robust_largest_move_in_se: sens.robust_move.and_then(finite),
+        influence: sens
+            .influence
+            .iter()
+            .map(|inf| {
+                let lin = crate::sensitivity::linear_columns(cd);
+                let dfbetas: Vec<NamedValue> =
+                    lin.iter().map(|&j| NamedValue { name: cd.names[j].clone(), value: finite(inf.dfbetas[j]) }).collect();
+                let largest = dfbetas.iter().filter_map(|v| v.value).map(f64::abs).fold(None, |m: Option<f64>, v| Some(m.map_or(v, |m| m.max(v))));
+                InfluenceOut { row: a.frame.ids[inf.row].clone(), line: a.frame.lines[inf.row], dfbetas, largest }
+            })
+            .collect(),
+        influence_capped: sens.influence_capped,
+        conclusion_changes,
+    };
+    let mut results = Results {
+        schema: SCHEMA,
+        study: StudyOut {
+            title: a.study.title.clone(),
+            date: a.study.date.clone(),
+            response: a.study.response.clone(),
+            n_rows_read: a.frame.n_read,
+            n_rows_used: a.frame.n_used(),
+            dropped: a.frame.dropped.iter().map(|d| DroppedOut { line: d.line, columns: d.columns.clone() }).collect(),
+            missing_per_column: a.frame.missing_per_column.iter().map(|(c, n)| MissingOut { column: c.clone(), rows: *n }).collect(),
+        },
+        fits: FitsOut { classical, robust, classical_without_flagged: without, robust_without_flagged: robust_without },
+        selection,
+        selection_method,
+        outliers,
+        sensitivity,
+        warnings: warnings(a),
+        provenance: ProvenanceOut {
+            spec_sha256: provenance::sha256_hex(inputs.spec_bytes),
+            data_sha256: a.frame.sha256.clone(),
+            resolved_spec_sha256: provenance::sha256_hex(inputs.resolved_yaml.as_bytes()),
+            data_file: a.study.data.file_as_written.clone(),
+            version: provenance::version().into(),
+            target: String::new(),
+            seed: a.study.seed,
+            digest: String::new(),
+        },
+    };
+    results.provenance.digest = digest(&results);
+    results.provenance.target = provenance::target();
+    results
+}
+
+/// sha256 over the canonical compact JSON with `digest` and `target` blank.
+pub fn digest(results: &Results) -> String {
+    let mut r = results.clone();
+    r.provenance.digest = String::new();
+    r.provenance.target = String::new();
+    let bytes = serde_json::to_vec(&r).unwrap_or_default();
+    provenance::sha256_hex(&bytes)
+}
+
+/// rows.csv: one row per used data row.
+pub fn rows_csv(a: &Analysis) -> String {
+    let sel = &a.selection;
+    let sens = &a.sensitivity;
+    let rf = &sel.robust_fit;
+    let cf = &sel.classical_fit;
+    let n = a.frame.n_used();
+    let mut flagged = vec![false; n];
+    for &i in &sens.flagged {
+        flagged[i] = true;
+    }
+    // The refit without flagged rows predicts every row (same encoding), so its columns are full.
+    let without_pred: Option<Vec<f64>> = sens.classical_without.as_ref().map(|(_, f)| {
+        let d = &sel.classical_design;
+        (0..n).map(|i| d.row(i).iter().zip(&f.coef).map(|(x, b)| x * b).sum()).collect()
+    });
+    let mut w = csv::WriterBuilder::new().terminator(csv::Terminator::Any(b'\n')).from_writer(Vec::new());
+    let mut header = vec!["row", "line", "observed", "classical-fitted", "classical-residual", "robust-fitted", "robust-residual"];
+    if without_pred.is_some() {
+        header.push("classical-without-flagged-fitted");
+        header.push("classical-without-flagged-residual");
+    }
+    header.extend(["robust-weight", "robust-scaled-residual", "flagged", "leverage"]);
+    let _ = w.write_record(&header);
+    let weights = rf.weights.clone().unwrap_or_default();
+    for i in 0..n {
+        let y = sel.robust_design.y[i];
+        let mut rec = vec![
+            a.frame.ids[i].clone(),
+            a.frame.lines[i].to_string(),
+            num(y),
+            num(cf.fitted[i]),
+            num(cf.residuals[i]),
+            num(rf.fitted[i]),
+            num(rf.residuals[i]),
+        ];
+        if let Some(p) = &without_pred {
+            rec.push(num(p[i]));
+            rec.push(num(y - p[i]));
+        }
+        rec.push(num(weights.get(i).copied().unwrap_or(f64::NAN)));
+        rec.push(num(if rf.scale > 0.0 { rf.residuals[i] / rf.scale } else { f64::NAN }));
+        rec.push(if flagged[i] { "yes".into() } else { "no".into() });
+        rec.push(num(sens.leverage.hat[i]));
+        let _ = w.write_record(&rec);
+    }
+    String::from_utf8(w.into_inner().unwrap_or_default()).unwrap_or_default()
+}
+
+/// Whether any fit failed to converge (for `--strict`).
+pub fn any_not_converged(a: &Analysis) -> bool {
+    let t = [a.selection.classical_fit.termination, a.selection.robust_fit.termination];
+    t.iter().any(|t: &Termination| !t.is_ok())
+}

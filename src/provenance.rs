@@ -1,0 +1,74 @@
+//! Provenance: sha256 digests of inputs and of the canonical results, and the manifest of outputs.
+//!
+//! The study digest is sha256 over the canonical (compact, key order fixed by the result types)
+//! serialisation of results.json with the `digest` and `target` fields blank: the target names the
+//! platform, which must not change a study's identity.
+
+use sha2::{Digest, Sha256};
+
+/// Lower-case hex sha256 of bytes.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    let d = Sha256::digest(bytes);
+    let mut s = String::with_capacity(64);
+    for b in d {
+        s.push_str(&format!("{b:02x}"));
+    }
+    s
+}
+
+/// The tool version recorded in every result.
+pub fn version() -> &'static str {
+    env!("CARGO_PKG_VERSION")
+}
+
+/// The platform the tool was built for (recorded, not hashed).
+pub fn target() -> String {
+    format!("{}-{}", std::env::consts::ARCH, std::env::consts::OS)
+}
+
+/// A `sha256sum -c` manifest: `<hex>  <name>` per line, names in the given order.
+pub fn manifest(files: &[(&str, &[u8])]) -> String {
+    let mut out = String::new();
+    for (name, bytes) in files {
+        out.push_str(&sha256_hex(bytes));
+        out.push_str("  ");
+        out.push_str(name);
+        out.push('\n');
+    }
+    out
+}
+
+/// Parse a manifest back into (name, hex) pairs; malformed lines are returned as errors with their number.
+pub fn parse_manifest(text: &str) -> Result<Vec<(String, String)>, usize> {
+    let mut out = Vec::new();
+    for (i, line) in text.lines().enumerate() {
+        if line.trim().is_empty() {
+            continue;
+        }
+        let Some((hex, name)) = line.split_once("  ") else { return Err(i + 1) };
+        if hex.len() != 64 || !hex.bytes().all(|b| b.is_ascii_hexdigit()) {
+            return Err(i + 1);
+        }
+        out.push((name.to_string(), hex.to_string()));
+    }
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn sha256_of_abc() {
+        // FIPS 180-2, appendix B.1 ("abc").
+        assert_eq!(sha256_hex(b"abc"), "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+    }
+
+    #[test]
+    fn manifest_round_trip() {
+        let m = manifest(&[("a.txt", b"abc"), ("b.txt", b"")]);
+        let parsed = parse_manifest(&m).unwrap();
+        assert_eq!(parsed[0].0, "a.txt");
+        assert_eq!(parsed[1].1, "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855");
+    }
+}

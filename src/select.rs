@@ -1,0 +1,371 @@
+//! Choosing basis sizes (DESIGN.md §4.5): every grid point gets a classical fit with its BIC and a robust
+//! fit with its robust criterion; each fit chooses its own sizes.
+//!
+//! BIC(k)  = log(RSS_k / n) + γ · p_k · log(n) / n
+//! RBIC(k) = log(σ̂² · (1/n) Σ ρ(r_ik / σ̂)) + γ · p_k · log(n) / n
+//! γ = 0.5 is the M-type spline criterion of He, Zhu & Fung (2002); γ = 1 is Schwarz (1978). With
+//! ρ(t) = t² the two coincide. In `Shared` scale mode σ̂ is the S-scale of the richest grid model and the MM
+//! fit at every grid point holds it fixed (robust criteria commonly take the full model's scale, e.g.
+//! Ronchetti & Staudte 1994).
+
+use crate::data::Frame;
+use crate::design::{Design, DesignError, ModelTerms};
+use crate::fit::{self, Fit, FitError, RobustMethod};
+use crate::linalg;
+use crate::robust::irls::IrlsOptions;
+use crate::robust::sest::{SEstimate, SOptions};
+use crate::termination::Termination;
+
+/// Largest product grid searched exhaustively; beyond it the search is coordinate-wise.
+pub const MAX_PRODUCT_POINTS: usize = 200;
+
+/// How the robust scale is chosen across the grid.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ScaleMode {
+    Shared,
+    PerSize,
+}
+
+/// How the grid was searched.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SearchKind {
+    /// One size shared by every smooth term.
+    Shared,
+    /// The full product of the per-term grids.
+    Product,
+    /// Coordinate-wise, term by term, from the best shared size.
+    CoordinateWise,
+    /// No smooth terms: a single linear model.
+    NoSmooth,
+}
+
+impl SearchKind {
+    pub fn describe(&self) -> &'static str {
+        match self {
+            SearchKind::Shared => "one basis size shared by every smooth term, every size on the grid",
+            SearchKind::Product => "every combination of the per-term grids (full product)",
+            SearchKind::CoordinateWise => {
+                "coordinate-wise: from the best shared size, each term's size in turn, repeated until no change"
+            }
+            SearchKind::NoSmooth => "no smooth terms: a single linear model, nothing to choose",
+        }
+    }
+}
+
+/// What to search.
+#[derive(Debug, Clone)]
+pub struct GridSpec {
+    /// The shared grid.
+    pub shared: Vec<usize>,
+    /// Per smooth term: its own grid, if given.
+    pub per_term: Vec<Option<Vec<usize>>>,
+    pub penalty: f64,
+}
+
+/// The robust side of the selection.
+#[derive(Debug, Clone)]
+pub struct RobustPlan {
+    pub method: RobustMethod,
+    pub scale_mode: ScaleMode,
+    pub s_options: SOptions,
+    pub irls: IrlsOptions,
+}
+
+/// One evaluated grid point.
+#[derive(Debug, Clone)]
+pub struct GridPoint {
+    pub sizes: Vec<usize>,
+    pub p: usize,
+    pub bic: Option<f64>,
+    pub rbic: Option<f64>,
+    pub robust_termination: Option<Termination>,
+    /// Why the point was skipped (impossible for the data), if it was.
+    pub skipped: Option<String>,
+}
+
+/// The selection's result: every point, the choices and the fits at the chosen points.
+#[derive(Debug)]
+pub struct Selection {
+    pub points: Vec<GridPoint>,
+    pub search: SearchKind,
+    pub classical_choice: usize,
+    pub robust_choice: usize,
+    /// The robust scale used by the criterion (shared mode: the richest model's S-scale).
+    pub shared_scale: Option<f64>,
+    /// Sizes of the model whose S-scale is shared.
+    pub scale_source: Vec<usize>,
+    /// The S-estimate behind the robust fit at its chosen point (or of the richest model).
+    pub s_estimate: Option<SEstimate>,
+    pub classical_design: Design,
+    pub classical_fit: Fit,
+    pub robust_design: Design,
+    pub robust_fit: Fit,
+}
+
+/// Why the selection failed as a whole.
+#[derive(Debug)]
+pub enum SelectError {
+    /// Every grid point was impossible; the reasons per point.
+    NonePossible(Vec<GridPoint>),
+    /// A fit failed for a reason other than the grid point's shape.
+    Fit(FitError, Vec<usize>),
+    Design(DesignError),
+}
+
+/// Classical criterion from an RSS.
+pub fn bic(rss: f64, n: usize, p: usize, penalty: f64) -> f64 {
+    let nf = n as f64;
+    libm::log(rss / nf) + penalty * (p as f64) * libm::log(nf) / nf
+}
+
+/// Robust criterion from residuals, scale and ρ.
+pub fn rbic(residuals: &[f64], scale: f64, rho: &dyn Fn(f64) -> f64, p: usize, penalty: f64) -> f64 {
+    let n = residuals.len();
+    let nf = n as f64;
+    let mean_rho = residuals.iter().map(|r| rho(r / scale)).sum::<f64>() / nf;
+    libm::log(scale * scale * mean_rho) + penalty * (p as f64) * libm::log(nf) / nf
+}
+
+fn describe_design_error(e: &DesignError) -> String {
+    use crate::basis::BasisError::*;
+    match e {
+        DesignError::Basis { column, size, error } => match error {
+            TooFewDistinct { distinct, needed } => {
+                format!("`{column}` has {distinct} distinct values, fewer than the {needed} basis functions of size {size}")
+            }
+            SizeBelowOrder { size, degree } => format!("size {size} is below degree + 1 = {} for `{column}`", degree + 1),
+            TiedKnots { requested, distinct } => format!(
+                "`{column}` at size {size}: {requested} interior knots needed but the sample quantiles give only {distinct} distinct ones (tied values)"
+            ),
+            DegenerateRange => format!("`{column}` has no spread (all values equal)"),
+        },
+        DesignError::MissingColumn(c) => format!("column `{c}` is not in the data"),
+    }
+}
+
+fn candidate_points(spec: &GridSpec, n_smooth: usize) -> (SearchKind, Vec<Vec<usize>>) {
+    if n_smooth == 0 {
+        return (SearchKind::NoSmooth, vec![vec![]]);
+    }
+    if spec.per_term.iter().all(|g| g.is_none()) {
+        return (SearchKind::Shared, spec.shared.iter().map(|&k| vec![k; n_smooth]).collect());
+    }
+    let lists: Vec<Vec<usize>> = spec.per_term.iter().map(|g| g.clone().unwrap_or_else(|| spec.shared.clone())).collect();
+    let total = lists.iter().map(|l| l.len()).product::<usize>();
+    if total <= MAX_PRODUCT_POINTS {
+        let mut points = vec![vec![]];
+        for l in &lists {
+            let mut next = Vec::new();
+            for p in &points {
+                for &k in l {
+                    let mut q = p.clone();
+                    q.push(k);
+                    next.push(q);
+                }
+            }
+            points = next;
+        }
+        (SearchKind::Product, points)
+    } else {
+        (SearchKind::CoordinateWise, Vec::new())
+    }
+}
+
+struct Evaluator<'a> {
+    frame: &'a Frame,
+    terms: &'a ModelTerms,
+    spec: &'a GridSpec,
+    plan: &'a RobustPlan,
+    shared_scale: Option<f64>,
+    /// Robust fitted values of the richest model, projected onto each design as a warm start.
+    anchor: Option<Vec<f64>>,
+}
+
+struct Evaluated {
+    point: GridPoint,
+    classical: Option<(Design, Fit)>,
+    robust: Option<(Fit, Option<SEstimate>)>,
+}
+
+impl Evaluator<'_> {
+    fn evaluate(&self, sizes: &[usize]) -> Result<Evaluated, SelectError> {
+        let mut point = GridPoint { sizes: sizes.to_vec(), p: 0, bic: None, rbic: None, robust_termination: None, skipped: None };
+        let design = match Design::build(self.frame, self.terms, sizes) {
+            Ok(d) => d,
+            Err(e @ DesignError::Basis { .. }) => {
+                point.skipped = Some(describe_design_error(&e));
+                return Ok(Evaluated { point, classical: None, robust: None });
+            }
+            Err(e) => return Err(SelectError::Design(e)),
+        };
+        point.p = design.p;
+        let classical = match fit::classical(&design) {
+            Ok(f) => f,
+            Err(FitError::RankDeficient { column, aliased_with }) if !sizes.is_empty() => {
+                let names: Vec<&str> = aliased_with.iter().map(|&c| design.names[c].as_str()).collect();
+                point.skipped = Some(format!(
+                    "the design is rank deficient: `{}` is a combination of {} (too few rows between knots)",
+                    design.names[column],
+                    if names.is_empty() { "nothing (an all-zero column)".to_string() } else { names.join(", ") }
+                ));
+                return Ok(Evaluated { point, classical: None, robust: None });
+            }
+            Err(e) => return Err(SelectError::Fit(e, sizes.to_vec())),
+        };
+        point.bic = Some(bic(classical.rss, design.n, design.p, self.spec.penalty));
+        let (start, scale, s_est) = match (self.plan.method.needs_s_estimate(), self.plan.scale_mode, self.shared_scale) {
+            (false, _, _) => (None, 0.0, None),
+            (true, ScaleMode::Shared, Some(scale)) => {
+                let start = match &self.anchor {
+                    Some(anchor) => linalg::qr_solve(&design.x, design.n, design.p, anchor, None).ok().map(|ls| ls.coef),
+                    None => None,
+                };
+                (start, scale, None)
+            }
+            _ => {
+                let s = fit::s_estimate(&design, &self.plan.s_options).map_err(|e| SelectError::Fit(e, sizes.to_vec()))?;
+                (Some(s.coef.clone()), s.scale, Some(s))
+            }
+        };
+        let robust = fit::robust(&design, self.plan.method, start.as_deref(), scale, &self.plan.irls)
+            .map_err(|e| SelectError::Fit(e, sizes.to_vec()))?;
+        let loss = self.plan.method.loss();
+        if robust.scale > 0.0 {
+            point.rbic = Some(rbic(&robust.residuals, robust.scale, &|t| loss.rho(t), design.p, self.spec.penalty));
+        }
+        point.robust_termination = Some(robust.termination);
+        Ok(Evaluated { point, classical: Some((design, classical)), robust: Some((robust, s_est)) })
+    }
+}
+
+fn argmin(points: &[Evaluated], key: impl Fn(&GridPoint) -> Option<f64>) -> Option<usize> {
+    let mut best: Option<(usize, f64)> = None;
+    for (i, e) in points.iter().enumerate() {
+        if let Some(v) = key(&e.point) {
+            if v.is_finite() && best.is_none_or(|(_, b)| v < b) {
+                best = Some((i, v));
+            }
+        }
+    }
+    best.map(|(i, _)| i)
+}
+
+/// Run the selection.
+pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustPlan) -> Result<Selection, SelectError> {
+    let n_smooth = terms.smooth.len();
+    let (search, mut candidates) = candidate_points(spec, n_smooth);
+    let lists: Vec<Vec<usize>> = spec.per_term.iter().map(|g| g.clone().unwrap_or_else(|| spec.shared.clone())).collect();
+    let mut ev = Evaluator { frame, terms, spec, plan, shared_scale: None, anchor: None };
+
+    // The shared scale: S-estimate of the richest model that can be built (largest sizes first).
+    let mut scale_source = Vec::new();
+    let mut s_richest = None;
+    if plan.method.needs_s_estimate() && plan.scale_mode == ScaleMode::Shared {
+        let mut order: Vec<Vec<usize>> = if search == SearchKind::CoordinateWise || search == SearchKind::Product {
+            let mut v = vec![lists.iter().map(|l| l.iter().copied().max().unwrap_or(0)).collect::<Vec<_>>()];
+            v.extend(candidates.iter().cloned());
+            v
+        } else {
+            candidates.clone()
+        };
+        order.sort_by_key(|s| std::cmp::Reverse(s.iter().sum::<usize>()));
+        for sizes in &order {
+            let Ok(design) = Design::build(frame, terms, sizes) else { continue };
+            if fit::classical(&design).is_err() {
+                continue;
+            }
+            let s = fit::s_estimate(&design, &plan.s_options).map_err(|e| SelectError::Fit(e, sizes.clone()))?;
+            let mm = fit::robust(&design, plan.method, Some(&s.coef), s.scale, &plan.irls)
+                .map_err(|e| SelectError::Fit(e, sizes.clone()))?;
+            ev.shared_scale = Some(s.scale);
+            ev.anchor = Some(mm.fitted.clone());
+            scale_source = sizes.clone();
+            s_richest = Some(s);
+            break;
+        }
+    }
+
+    let mut evaluated: Vec<Evaluated> = Vec::new();
+    if search == SearchKind::CoordinateWise {
+        // Start from the best shared size, then improve term by term, for each criterion.
+        let shared_points: Vec<Vec<usize>> = spec.shared.iter().map(|&k| vec![k; n_smooth]).collect();
+        for s in &shared_points {
+            evaluated.push(ev.evaluate(s)?);
+        }
+        for which in 0..2 {
+            let key = |p: &GridPoint| if which == 0 { p.bic } else { p.rbic };
+            let Some(mut current) = argmin(&evaluated, key).map(|i| evaluated[i].point.sizes.clone()) else { continue };
+            for _sweep in 0..3 {
+                let before = current.clone();
+                for t in 0..n_smooth {
+                    for &k in &lists[t] {
+                        let mut s = current.clone();
+                        s[t] = k;
+                        if !evaluated.iter().any(|e| e.point.sizes == s) {
+                            evaluated.push(ev.evaluate(&s)?);
+                        }
+                    }
+                    let best = evaluated
+                        .iter()
+                        .filter(|e| (0..n_smooth).all(|u| u == t || e.point.sizes[u] == current[u]))
+                        .filter_map(|e| key(&e.point).filter(|v| v.is_finite()).map(|v| (v, e.point.sizes.clone())))
+                        .min_by(|a, b| a.0.total_cmp(&b.0));
+                    if let Some((_, s)) = best {
+                        current = s;
+                    }
+                }
+                if current == before {
+                    break;
+                }
+            }
+        }
+        candidates.clear();
+    } else {
+        for s in &candidates {
+            evaluated.push(ev.evaluate(s)?);
+        }
+    }
+
+    let classical_choice = argmin(&evaluated, |p| p.bic);
+    let robust_choice = argmin(&evaluated, |p| p.rbic);
+    let (Some(ci), Some(ri)) = (classical_choice, robust_choice) else {
+        return Err(SelectError::NonePossible(evaluated.into_iter().map(|e| e.point).collect()));
+    };
+    let points: Vec<GridPoint> = evaluated.iter().map(|e| e.point.clone()).collect();
+    let mut slots: Vec<Option<Evaluated>> = evaluated.into_iter().map(Some).collect();
+    let take_c = slots[ci].as_ref().and_then(|e| e.classical.clone());
+    let r_eval = slots[ri].take();
+    let (Some((classical_design, classical_fit)), Some(r_eval)) = (take_c, r_eval) else {
+        return Err(SelectError::NonePossible(points));
+    };
+    let (Some((robust_design, _)), Some((robust_fit, s_at_point))) = (r_eval.classical, r_eval.robust) else {
+        return Err(SelectError::NonePossible(points));
+    };
+    Ok(Selection {
+        points,
+        search,
+        classical_choice: ci,
+        robust_choice: ri,
+        shared_scale: ev.shared_scale,
+        scale_source,
+        s_estimate: s_at_point.or(s_richest),
+        classical_design,
+        classical_fit,
+        robust_design,
+        robust_fit,
+    })
+}
+
+/// Whether a chosen size sits at the edge of its term's grid (per smooth term).
+pub fn at_edge(spec: &GridSpec, sizes: &[usize]) -> Vec<bool> {
+    sizes
+        .iter()
+        .enumerate()
+        .map(|(t, &k)| {
+            let list = spec.per_term.get(t).cloned().flatten().unwrap_or_else(|| spec.shared.clone());
+            let lo = list.iter().copied().min().unwrap_or(k);
+            let hi = list.iter().copied().max().unwrap_or(k);
+            list.len() > 1 && (k == lo || k == hi)
+        })
+        .collect()
+}

@@ -1,0 +1,344 @@
+//! Outliers and sensitivity (DESIGN.md §4.4): flags from the robust fit, the boxplot view, leverage,
+//! refits without the flagged rows, the three fits side by side, and leave-one-out influence.
+//!
+//! Pure computation on designs and fits; the report only displays what this module returns.
+
+use crate::basis::quantile_sorted;
+use crate::data::{ColumnData, Frame};
+use crate::design::{Design, ModelTerms, TermKind};
+use crate::dist;
+use crate::fit::{self, Curve, Fit, FitError, RobustMethod};
+use crate::linalg;
+use crate::robust::irls::IrlsOptions;
+use crate::select::{self, GridPoint};
+
+/// Most flagged rows examined one at a time for influence.
+pub const MAX_INFLUENCE_ROWS: usize = 50;
+
+/// Rows whose |robust scaled residual| exceeds the cutoff, ascending row index.
+pub fn flag_rows(scaled_residuals: &[f64], cutoff: f64) -> Vec<usize> {
+    scaled_residuals.iter().enumerate().filter(|(_, z)| z.abs() > cutoff).map(|(i, _)| i).collect()
+}
+
+/// Expected number of clean rows beyond ±cutoff under normal errors: n · P(|Z| > cutoff).
+pub fn expected_false_flags(n: usize, cutoff: f64) -> f64 {
+    n as f64 * dist::two_sided_normal_tail(cutoff)
+}
+
+/// Tukey (1977) boxplot fences at 1.5 IQR; quartiles by linear interpolation of the order statistics
+/// (Hyndman & Fan 1996 type 7).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Boxplot {
+    pub q1: f64,
+    pub median: f64,
+    pub q3: f64,
+    pub lower_fence: f64,
+    pub upper_fence: f64,
+    /// Rows outside the fences.
+    pub outside: Vec<usize>,
+}
+
+pub fn boxplot(values: &[f64]) -> Boxplot {
+    let mut s = values.to_vec();
+    s.sort_by(|a, b| a.total_cmp(b));
+    let q1 = quantile_sorted(&s, 0.25);
+    let median = quantile_sorted(&s, 0.5);
+    let q3 = quantile_sorted(&s, 0.75);
+    let iqr = q3 - q1;
+    let lower_fence = q1 - 1.5 * iqr;
+    let upper_fence = q3 + 1.5 * iqr;
+    let outside = values.iter().enumerate().filter(|(_, v)| **v < lower_fence || **v > upper_fence).map(|(i, _)| i).collect();
+    Boxplot { q1, median, q3, lower_fence, upper_fence, outside }
+}
+
+/// Hat values of a design and the rows above 2p/n (Belsley, Kuh & Welsch 1980).
+#[derive(Debug, Clone)]
+pub struct Leverage {
+    pub hat: Vec<f64>,
+    pub threshold: f64,
+    pub high: Vec<usize>,
+}
+
+pub fn leverage(design: &Design) -> Result<Leverage, FitError> {
+    let ls = linalg::qr_solve(&design.x, design.n, design.p, &design.y, None)?;
+    let hat = linalg::hat_values(&design.x, design.n, design.p, &ls.r);
+    let threshold = 2.0 * design.p as f64 / design.n as f64;
+    let high = hat.iter().enumerate().filter(|(_, h)| **h > threshold).map(|(i, _)| i).collect();
+    Ok(Leverage { hat, threshold, high })
+}
+
+/// The used rows of `frame` restricted to `keep` (ascending), for reruns without flagged rows.
+pub fn frame_subset(frame: &Frame, keep: &[usize]) -> Frame {
+    let columns = frame
+        .columns
+        .iter()
+        .map(|c| {
+            let data = match &c.data {
+                ColumnData::Numeric(v) => ColumnData::Numeric(keep.iter().map(|&i| v[i]).collect()),
+                ColumnData::Categorical { levels, codes, reference, .. } => {
+                    let codes: Vec<u32> = keep.iter().map(|&i| codes[i]).collect();
+                    let mut counts = vec![0; levels.len()];
+                    for &c in &codes {
+                        counts[c as usize] += 1;
+                    }
+                    ColumnData::Categorical { levels: levels.clone(), codes, reference: *reference, counts }
+                }
+            };
+            crate::data::Column { name: c.name.clone(), data }
+        })
+        .collect();
+    Frame {
+        n_read: frame.n_read,
+        columns,
+        lines: keep.iter().map(|&i| frame.lines[i]).collect(),
+        ids: keep.iter().map(|&i| frame.ids[i].clone()).collect(),
+        dropped: frame.dropped.clone(),
+        missing_per_column: frame.missing_per_column.clone(),
+        warnings: Vec::new(),
+        sha256: frame.sha256.clone(),
+        header: frame.header.clone(),
+    }
+}
+
+/// Leave-one-out change of every coefficient when row i alone is left out of a least-squares fit, by
+/// the closed form Δβ = (X'X)⁻¹ x_i r_i / (1 − h_ii) (Belsley, Kuh & Welsch 1980, ch. 2), and the
+/// DFBETAS scaling Δβ_j / (s_(i) √((X'X)⁻¹_jj)) with s_(i)² = (RSS − r_i²/(1 − h_ii)) / (n − p − 1).
+#[derive(Debug, Clone)]
+pub struct Influence {
+    pub row: usize,
+    /// Change β_(i) − β for every coefficient (β_(i): without row i).
+    pub change: Vec<f64>,
+    pub dfbetas: Vec<f64>,
+}
+
+pub fn influence(design: &Design, fit: &Fit, xtx_inv: &[f64], hat: &[f64], rows: &[usize]) -> Vec<Influence> {
+    let (n, p) = (design.n, design.p);
+    let df = n as f64 - p as f64 - 1.0;
+    rows.iter()
+        .map(|&i| {
+            let x = design.row(i);
+            let r = fit.residuals[i];
+            let h = hat[i];
+            let denom = 1.0 - h;
+            let mut change = vec![0.0; p];
+            for (a, c) in change.iter_mut().enumerate() {
+                let s: f64 = (0..p).map(|b| xtx_inv[a * p + b] * x[b]).sum();
+                // β − β_(i) = (X'X)⁻¹ x_i r_i / (1 − h_ii): the refit moves by minus this.
+                *c = if denom > 0.0 { -s * r / denom } else { 0.0 };
+            }
+            let rss_i = if denom > 0.0 { fit.rss - r * r / denom } else { fit.rss };
+            let s_i = if df > 0.0 { (rss_i.max(0.0) / df).sqrt() } else { 0.0 };
+            let dfbetas = (0..p)
+                .map(|a| {
+                    let d = s_i * xtx_inv[a * p + a].max(0.0).sqrt();
+                    if d > 0.0 {
+                        change[a] / d
+                    } else {
+                        0.0
+                    }
+                })
+                .collect();
+            Influence { row: i, change, dfbetas }
+        })
+        .collect()
+}
+
+/// One linear coefficient across the three fits.
+#[derive(Debug, Clone)]
+pub struct CoefficientRow {
+    pub name: String,
+    /// (estimate, std error, lower, upper, significant) per fit: classical, robust, classical without flagged.
+    pub values: Vec<Option<(f64, f64, f64, f64, bool)>>,
+    pub sign_changes: bool,
+    pub significance_changes: bool,
+}
+
+/// How far one fit's curve sits from the robust curve, in robust band half-widths.
+#[derive(Debug, Clone)]
+pub struct CurveMove {
+    pub column: String,
+    /// Curves on the common grid: classical, robust, classical without flagged (if refitted).
+    pub grid: Vec<f64>,
+    pub classical: Curve,
+    pub robust: Curve,
+    pub without_flagged: Option<Curve>,
+    /// max |g_fit − g_robust| / median robust half-width, for classical and for classical-without-flagged.
+    pub classical_move: f64,
+    pub without_flagged_move: Option<f64>,
+}
+
+/// Everything the sensitivity step found.
+#[derive(Debug)]
+pub struct Sensitivity {
+    pub flagged: Vec<usize>,
+    pub expected_false: f64,
+    pub boxplot: Boxplot,
+    pub leverage: Leverage,
+    /// Classical refit without flagged rows at the classical chosen sizes.
+    pub classical_without: Option<(Design, Fit)>,
+    /// Classical criterion rerun without flagged rows over the same grid points.
+    pub rerun_points: Vec<GridPoint>,
+    pub rerun_choice: Option<usize>,
+    /// Robust refit without flagged rows; the largest coefficient move in robust standard errors.
+    pub robust_without: Option<Fit>,
+    pub robust_move: Option<f64>,
+    pub coefficients: Vec<CoefficientRow>,
+    pub curves: Vec<CurveMove>,
+    pub influence: Vec<Influence>,
+    pub influence_capped: bool,
+}
+
+/// Linear coefficient indices (intercept and linear terms) of a design.
+pub fn linear_columns(design: &Design) -> Vec<usize> {
+    design.spans.iter().filter(|s| s.kind != TermKind::Smooth).flat_map(|s| s.start..s.start + s.len).collect()
+}
+
+#[allow(clippy::too_many_arguments)]
+pub fn analyse(
+    frame: &Frame,
+    terms: &ModelTerms,
+    classical: (&Design, &Fit),
+    robust: (&Design, &Fit),
+    method: RobustMethod,
+    irls: &IrlsOptions,
+    cutoff: f64,
+    grid_points: &[GridPoint],
+    penalty: f64,
+    refit: bool,
+    with_influence: bool,
+) -> Result<Sensitivity, FitError> {
+    let (cd, cf) = classical;
+    let (rd, rf) = robust;
+    let n = rd.n;
+    let scaled: Vec<f64> = if rf.scale > 0.0 { rf.residuals.iter().map(|r| r / rf.scale).collect() } else { vec![0.0; n] };
+    let flagged = flag_rows(&scaled, cutoff);
+    let expected_false = expected_false_flags(n, cutoff);
+    let boxplot = boxplot(&scaled);
+    let leverage = leverage(rd)?;
+    let keep: Vec<usize> = {
+        let mut is_flagged = vec![false; n];
+        for &i in &flagged {
+            is_flagged[i] = true;
+        }
+        (0..n).filter(|&i| !is_flagged[i]).collect()
+    };
+    let mut classical_without = None;
+    let mut robust_without = None;
+    let mut robust_move = None;
+    let mut rerun_points = Vec::new();
+    let mut rerun_choice = None;
+    if refit && !flagged.is_empty() && keep.len() > cd.p {
+        let sub = cd.subset(&keep);
+        if let Ok(f) = fit::classical(&sub) {
+            classical_without = Some((sub, f));
+        }
+        let rsub = rd.subset(&keep);
+        if let Ok(f) = fit::robust(&rsub, method, Some(&rf.coef), rf.scale, irls) {
+            let lin = linear_columns(rd);
+            let mv = lin
+                .iter()
+                .map(|&j| if rf.std_errors[j] > 0.0 { (f.coef[j] - rf.coef[j]).abs() / rf.std_errors[j] } else { 0.0 })
+                .fold(0.0, f64::max);
+            robust_move = Some(mv);
+            robust_without = Some(f);
+        }
+        let sub_frame = frame_subset(frame, &keep);
+        for gp in grid_points {
+            let mut point = GridPoint { sizes: gp.sizes.clone(), p: 0, bic: None, rbic: None, robust_termination: None, skipped: None };
+            match crate::design::Design::build(&sub_frame, terms, &gp.sizes) {
+                Ok(d) => {
+                    point.p = d.p;
+                    match fit::classical(&d) {
+                        Ok(f) => point.bic = Some(select::bic(f.rss, d.n, d.p, penalty)),
+                        Err(_) => point.skipped = Some("rank deficient without the flagged rows".into()),
+                    }
+                }
+                Err(_) => point.skipped = Some("basis impossible without the flagged rows".into()),
+            }
+            rerun_points.push(point);
+        }
+        rerun_choice = rerun_points
+            .iter()
+            .enumerate()
+            .filter_map(|(i, p)| p.bic.map(|b| (i, b)))
+            .min_by(|a, b| a.1.total_cmp(&b.1))
+            .map(|(i, _)| i);
+    }
+
+    // Side-by-side linear coefficients (names from the classical design; linear columns coincide).
+    let lin = linear_columns(cd);
+    let coefficients = lin
+        .iter()
+        .map(|&j| {
+            let pick = |f: &Fit| Some((f.coef[j], f.std_errors[j], f.lower[j], f.upper[j], f.significant(j)));
+            let values = vec![pick(cf), pick(rf), classical_without.as_ref().and_then(|(_, f)| pick(f))];
+            let present: Vec<(f64, f64, f64, f64, bool)> = values.iter().flatten().copied().collect();
+            let sign_changes = present.iter().any(|v| v.0 > 0.0) && present.iter().any(|v| v.0 < 0.0);
+            let significance_changes = present.iter().any(|v| v.4) && present.iter().any(|v| !v.4);
+            CoefficientRow { name: cd.names[j].clone(), values, sign_changes, significance_changes }
+        })
+        .collect();
+
+    let mut curves = Vec::new();
+    for t in 0..rd.smooth.len() {
+        let grid = fit::curve_grid(rd, t, 200);
+        let robust_curve = fit::curve(rd, rf, t, &grid);
+        let classical_curve = fit::curve(cd, cf, t, &grid);
+        let without = classical_without.as_ref().map(|(d, f)| fit::curve(d, f, t, &grid));
+        let mut half: Vec<f64> = robust_curve.upper.iter().zip(&robust_curve.lower).map(|(u, l)| (u - l) / 2.0).collect();
+        half.sort_by(|a, b| a.total_cmp(b));
+        let median_half = if half.is_empty() { 0.0 } else { quantile_sorted(&half, 0.5) };
+        let mv = |c: &Curve| {
+            let m = c.value.iter().zip(&robust_curve.value).map(|(a, b)| (a - b).abs()).fold(0.0, f64::max);
+            if median_half > 0.0 {
+                m / median_half
+            } else {
+                0.0
+            }
+        };
+        let classical_move = mv(&classical_curve);
+        let without_flagged_move = without.as_ref().map(mv);
+        curves.push(CurveMove {
+            column: rd.smooth[t].column.clone(),
+            grid,
+            classical: classical_curve,
+            robust: robust_curve,
+            without_flagged: without,
+            classical_move,
+            without_flagged_move,
+        });
+    }
+
+    let mut influence_rows = Vec::new();
+    let mut influence_capped = false;
+    if with_influence && !flagged.is_empty() {
+        // Influence in the classical fit at its chosen size: the rows ranked by |scaled residual|.
+        let mut ranked = flagged.clone();
+        ranked.sort_by(|&a, &b| scaled[b].abs().total_cmp(&scaled[a].abs()).then(a.cmp(&b)));
+        if ranked.len() > MAX_INFLUENCE_ROWS {
+            ranked.truncate(MAX_INFLUENCE_ROWS);
+            influence_capped = true;
+        }
+        ranked.sort_unstable();
+        let ls = linalg::qr_solve(&cd.x, cd.n, cd.p, &cd.y, None)?;
+        let inv = ls.xtx_inverse();
+        let hat = linalg::hat_values(&cd.x, cd.n, cd.p, &ls.r);
+        influence_rows = influence(cd, cf, &inv, &hat, &ranked);
+    }
+
+    Ok(Sensitivity {
+        flagged,
+        expected_false,
+        boxplot,
+        leverage,
+        classical_without,
+        rerun_points,
+        rerun_choice,
+        robust_without,
+        robust_move,
+        coefficients,
+        curves,
+        influence: influence_rows,
+        influence_capped,
+    })
+}
