@@ -83,3 +83,8 @@ impl Frame {
         }
     }
 }
+
+/// Placeholder (replaced by the data module).
+pub fn load(_req: &FrameRequest) -> crate::error::Result<Frame> {
+    todo!()
+}

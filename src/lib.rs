@@ -17,3 +17,8 @@ pub mod analysis;
 pub mod outputs;
 pub mod provenance;
 pub mod results;
+pub mod app;
+pub mod cli;
+pub mod compare;
+pub mod init;
+pub mod report;
