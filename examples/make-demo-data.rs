@@ -118,7 +118,8 @@ fn cold_store(out_dir: &str) {
 }
 
 fn main() {
-    let out_dir = std::env::args().nth(1).unwrap_or_else(|| concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data").to_string());
+    let out_dir =
+        std::env::args().nth(1).unwrap_or_else(|| concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data").to_string());
     std::fs::create_dir_all(&out_dir).unwrap();
     assessment(&out_dir);
     cold_store(&out_dir);

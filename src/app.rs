@@ -45,7 +45,9 @@ pub fn load_frame(study: &Study, spec_display: &str) -> Result<data::Frame> {
                 frame.sha256
             ))
             .at(format!("{spec_display}: data.sha256"))
-            .hint("the data changed since the spec was pinned: restore the original file, or update the pin after review"));
+            .hint(
+                "the data changed since the spec was pinned: restore the original file, or update the pin after review",
+            ));
         }
     }
     Ok(frame)
@@ -65,7 +67,8 @@ pub fn compute(study: Study, spec_bytes: &[u8], spec_display: &str, rerun_json: 
     let analysis = analysis::analyse(study, frame, spec_display)?;
     let results = outputs::results(&analysis, &outputs::Inputs { spec_bytes, resolved_yaml: &resolved });
     let rows = outputs::rows_csv(&analysis);
-    let json = serde_json::to_string_pretty(&results).map_err(|e| Error::new(format!("cannot write results: {e}")))? + "\n";
+    let json =
+        serde_json::to_string_pretty(&results).map_err(|e| Error::new(format!("cannot write results: {e}")))? + "\n";
     let html = crate::report::render(&analysis, &results, &resolved)?;
     let files = vec![
         ("report.html".to_string(), html.into_bytes()),
@@ -136,7 +139,9 @@ fn run(spec_path: &Path, out: Option<&Path>, strict: bool, quiet: bool) -> Resul
             .hint("choose another folder with --out"));
     }
     if out_abs.is_file() {
-        return Err(Error::new("the output path is an existing file, not a folder").at(out_dir.display().to_string()).hint("choose another folder with --out"));
+        return Err(Error::new("the output path is an existing file, not a folder")
+            .at(out_dir.display().to_string())
+            .hint("choose another folder with --out"));
     }
     if data_abs.starts_with(&out_abs) {
         return Err(Error::new("the data file lies inside the output folder, which a run replaces")
@@ -191,7 +196,8 @@ pub fn write_outputs(dir: &Path, files: &[(String, Vec<u8>)]) -> Result<()> {
     }
     let tmp = parent.join(format!(".{name}.tmp-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&tmp);
-    std::fs::create_dir_all(&tmp).map_err(|e| Error::io("create the output folder", &tmp, &e).hint("check that the folder is writable"))?;
+    std::fs::create_dir_all(&tmp)
+        .map_err(|e| Error::io("create the output folder", &tmp, &e).hint("check that the folder is writable"))?;
     let result = (|| -> Result<()> {
         let mut listed: Vec<(&str, &[u8])> = Vec::new();
         for (file, bytes) in files {
@@ -246,7 +252,12 @@ fn check(spec_path: &Path) -> Result<u8> {
             }
             data::ColumnData::Categorical { levels, counts, reference, .. } => {
                 let lv: Vec<String> = levels.iter().zip(counts).map(|(l, n)| format!("{l} ({n})")).collect();
-                s.push_str(&format!("#   {}: categorical, reference {}, levels {}\n", c.name, levels[*reference], lv.join(", ")));
+                s.push_str(&format!(
+                    "#   {}: categorical, reference {}, levels {}\n",
+                    c.name,
+                    levels[*reference],
+                    lv.join(", ")
+                ));
             }
         }
     }
@@ -300,14 +311,17 @@ fn compare_cmd(a: &Path, b: &Path, tol: Tolerance) -> Result<u8> {
 fn verify(dir: &Path, data_override: Option<&Path>) -> Result<u8> {
     let mut findings: Vec<String> = Vec::new();
     let mpath = dir.join("manifest.sha256");
-    let manifest = std::fs::read_to_string(&mpath)
-        .map_err(|e| Error::io("read the manifest", &mpath, &e).hint("verify needs a folder written by `knotwise run`"))?;
+    let manifest = std::fs::read_to_string(&mpath).map_err(|e| {
+        Error::io("read the manifest", &mpath, &e).hint("verify needs a folder written by `knotwise run`")
+    })?;
     let entries = provenance::parse_manifest(&manifest)
         .map_err(|line| Error::new("malformed manifest line").at(format!("{}, line {line}", mpath.display())))?;
     for (name, hex) in &entries {
         match std::fs::read(dir.join(name)) {
             Ok(bytes) if provenance::sha256_hex(&bytes) == *hex => {}
-            Ok(_) => findings.push(format!("{name} was edited after the run (its sha256 no longer matches manifest.sha256)")),
+            Ok(_) => {
+                findings.push(format!("{name} was edited after the run (its sha256 no longer matches manifest.sha256)"))
+            }
             Err(_) => findings.push(format!("{name} is missing from the output folder")),
         }
     }
@@ -332,7 +346,8 @@ fn verify(dir: &Path, data_override: Option<&Path>) -> Result<u8> {
         .hint("put the data file back at that path, or pass --data PATH"));
     }
     if provenance::sha256_hex(resolved_text.as_bytes()) != rec("resolved-spec-sha256") {
-        findings.push("the recorded spec (study.resolved.yaml) differs from the one the results were computed from".into());
+        findings
+            .push("the recorded spec (study.resolved.yaml) differs from the one the results were computed from".into());
     }
     if let Some(sf) = rerun.get("spec-file").and_then(Value::as_str) {
         if let Ok(bytes) = std::fs::read(dir.join(sf)) {

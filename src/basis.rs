@@ -45,11 +45,9 @@ impl fmt::Display for BasisError {
                 f,
                 "the variable has {distinct} distinct values, fewer than the {needed} basis functions asked for"
             ),
-            BasisError::SizeBelowOrder { size, degree } => write!(
-                f,
-                "a basis of degree {degree} needs at least {} functions, {size} were asked for",
-                degree + 1
-            ),
+            BasisError::SizeBelowOrder { size, degree } => {
+                write!(f, "a basis of degree {degree} needs at least {} functions, {size} were asked for", degree + 1)
+            }
             BasisError::TiedKnots { requested, distinct } => write!(
                 f,
                 "{requested} interior knots were needed but the sample quantiles give only {distinct} distinct \
@@ -79,12 +77,7 @@ impl Basis {
     /// [`BasisError::DegenerateRange`]; fewer distinct values than `size` → [`BasisError::TooFewDistinct`];
     /// interior knots that coincide with each other or with a boundary → [`BasisError::TiedKnots`].
     /// Degree 0 (piecewise constant) is allowed.
-    pub fn for_sample(
-        x: &[f64],
-        degree: usize,
-        size: usize,
-        placement: KnotPlacement,
-    ) -> Result<Basis, BasisError> {
+    pub fn for_sample(x: &[f64], degree: usize, size: usize, placement: KnotPlacement) -> Result<Basis, BasisError> {
         if size < degree + 1 {
             return Err(BasisError::SizeBelowOrder { size, degree });
         }
@@ -100,10 +93,7 @@ impl Basis {
         }
         let distinct = 1 + sorted.windows(2).filter(|w| w[0] != w[1]).count();
         if distinct < size {
-            return Err(BasisError::TooFewDistinct {
-                distinct,
-                needed: size,
-            });
+            return Err(BasisError::TooFewDistinct { distinct, needed: size });
         }
 
         let n_interior = size - degree - 1;
@@ -119,16 +109,9 @@ impl Basis {
         let strictly_inside = interior.iter().all(|&t| lo < t && t < hi);
         let increasing = interior.windows(2).all(|w| w[0] < w[1]);
         if !(strictly_inside && increasing) {
-            let mut inside: Vec<f64> = interior
-                .iter()
-                .copied()
-                .filter(|&t| lo < t && t < hi)
-                .collect();
+            let mut inside: Vec<f64> = interior.iter().copied().filter(|&t| lo < t && t < hi).collect();
             inside.dedup();
-            return Err(BasisError::TiedKnots {
-                requested: n_interior,
-                distinct: inside.len(),
-            });
+            return Err(BasisError::TiedKnots { requested: n_interior, distinct: inside.len() });
         }
 
         let mut knots = Vec::with_capacity(size + degree + 1);
@@ -255,11 +238,7 @@ impl CentredBasis {
         }
         let means = basis.column_means(x);
         let dropped = basis.size() - 1;
-        Ok(CentredBasis {
-            basis,
-            means,
-            dropped,
-        })
+        Ok(CentredBasis { basis, means, dropped })
     }
 
     /// Number of design columns, k − 1.
@@ -337,9 +316,7 @@ mod tests {
 
     fn sample(n: usize) -> Vec<f64> {
         // A deterministic, irregular sample on about [-3, 5].
-        (0..n)
-            .map(|i| 4.0 * libm::sin(i as f64 * 0.7) + 0.01 * i as f64)
-            .collect()
+        (0..n).map(|i| 4.0 * libm::sin(i as f64 * 0.7) + 0.01 * i as f64).collect()
     }
 
     #[test]
@@ -347,8 +324,7 @@ mod tests {
         let x = sample(200);
         for degree in 0..=4 {
             for size in degree + 1..degree + 9 {
-                let b =
-                    Basis::for_sample(&x, degree, size, KnotPlacement::Quantile).expect("valid");
+                let b = Basis::for_sample(&x, degree, size, KnotPlacement::Quantile).expect("valid");
                 assert_eq!(b.size(), size);
                 assert_eq!(b.interior_knots().len() + degree + 1, size);
                 assert_eq!(b.knots.len(), size + degree + 1);
@@ -369,10 +345,7 @@ mod tests {
                     let first = b.eval_nonzero(xi, &mut nz);
                     assert!(first + degree < b.size());
                     let sum: f64 = nz.iter().sum();
-                    assert!(
-                        (sum - 1.0).abs() <= 1e-12,
-                        "degree {degree}: sum {sum} at {xi}"
-                    );
+                    assert!((sum - 1.0).abs() <= 1e-12, "degree {degree}: sum {sum} at {xi}");
                     assert!(nz.iter().all(|&v| v >= 0.0), "negative value at {xi}");
                     let dense = b.eval_dense(xi);
                     assert!(dense.iter().filter(|&&v| v != 0.0).count() <= degree + 1);
@@ -412,10 +385,7 @@ mod tests {
     fn uniform_knots_are_evenly_spaced() {
         let x = [-2.0, 3.0, 0.0, 1.0, 2.5, -1.0, 0.5];
         let b = Basis::for_sample(&x, 2, 7, KnotPlacement::Uniform).expect("valid");
-        assert_eq!(
-            b.knots,
-            vec![-2.0, -2.0, -2.0, -1.0, 0.0, 1.0, 2.0, 3.0, 3.0, 3.0]
-        );
+        assert_eq!(b.knots, vec![-2.0, -2.0, -2.0, -1.0, 0.0, 1.0, 2.0, 3.0, 3.0, 3.0]);
     }
 
     #[test]
@@ -440,14 +410,8 @@ mod tests {
             Basis::for_sample(&x, 3, 3, KnotPlacement::Quantile),
             Err(BasisError::SizeBelowOrder { size: 3, degree: 3 })
         );
-        assert_eq!(
-            Basis::for_sample(&[], 3, 6, KnotPlacement::Quantile),
-            Err(BasisError::DegenerateRange)
-        );
-        assert_eq!(
-            Basis::for_sample(&[2.0; 10], 3, 6, KnotPlacement::Quantile),
-            Err(BasisError::DegenerateRange)
-        );
+        assert_eq!(Basis::for_sample(&[], 3, 6, KnotPlacement::Quantile), Err(BasisError::DegenerateRange));
+        assert_eq!(Basis::for_sample(&[2.0; 10], 3, 6, KnotPlacement::Quantile), Err(BasisError::DegenerateRange));
         assert_eq!(
             Basis::for_sample(&[1.0, f64::NAN, 3.0], 1, 2, KnotPlacement::Uniform),
             Err(BasisError::DegenerateRange)
@@ -462,17 +426,10 @@ mod tests {
         );
         assert_eq!(
             Basis::for_sample(&[1.0, 2.0, 3.0, 2.0, 1.0], 3, 6, KnotPlacement::Uniform),
-            Err(BasisError::TooFewDistinct {
-                distinct: 3,
-                needed: 6
-            })
+            Err(BasisError::TooFewDistinct { distinct: 3, needed: 6 })
         );
         // Messages name the numbers.
-        let msg = BasisError::TooFewDistinct {
-            distinct: 3,
-            needed: 6,
-        }
-        .to_string();
+        let msg = BasisError::TooFewDistinct { distinct: 3, needed: 6 }.to_string();
         assert!(msg.contains('3') && msg.contains('6'), "{msg}");
     }
 
@@ -487,44 +444,19 @@ mod tests {
         let b = Basis::for_sample(&x, 1, 5, KnotPlacement::Quantile).expect("three knots");
         assert_eq!(b.interior_knots(), &[1.0, 2.0, 3.0]);
         // A heavier tie: 0 ×30 then 1..=10.
-        let heavy: Vec<f64> = (0..40)
-            .map(|i| if i < 30 { 0.0 } else { f64::from(i - 29) })
-            .collect();
+        let heavy: Vec<f64> = (0..40).map(|i| if i < 30 { 0.0 } else { f64::from(i - 29) }).collect();
         // K = 4 quantiles at 0.2, 0.4, 0.6, 0.8 (h = 39p = 7.8, 15.6, 23.4, 31.2) are 0, 0, 0, 2.2: three
         // sit on the lower boundary, one distinct knot is left inside.
         let err = Basis::for_sample(&heavy, 3, 8, KnotPlacement::Quantile).unwrap_err();
-        assert_eq!(
-            err,
-            BasisError::TiedKnots {
-                requested: 4,
-                distinct: 1
-            }
-        );
+        assert_eq!(err, BasisError::TiedKnots { requested: 4, distinct: 1 });
         // Deterministic: the same input gives the same error.
-        assert_eq!(
-            Basis::for_sample(&heavy, 3, 8, KnotPlacement::Quantile).unwrap_err(),
-            err
-        );
+        assert_eq!(Basis::for_sample(&heavy, 3, 8, KnotPlacement::Quantile).unwrap_err(), err);
         // Uniform placement on the same data is fine.
         assert!(Basis::for_sample(&heavy, 3, 8, KnotPlacement::Uniform).is_ok());
         // Two coinciding interior knots, neither at a boundary.
-        let mid: Vec<f64> = (0..21)
-            .map(|i| {
-                if (3..18).contains(&i) {
-                    5.0
-                } else {
-                    f64::from(i)
-                }
-            })
-            .collect();
+        let mid: Vec<f64> = (0..21).map(|i| if (3..18).contains(&i) { 5.0 } else { f64::from(i) }).collect();
         let err = Basis::for_sample(&mid, 1, 5, KnotPlacement::Quantile).unwrap_err();
-        assert_eq!(
-            err,
-            BasisError::TiedKnots {
-                requested: 3,
-                distinct: 1
-            }
-        );
+        assert_eq!(err, BasisError::TiedKnots { requested: 3, distinct: 1 });
     }
 
     #[test]
@@ -535,10 +467,7 @@ mod tests {
         assert_eq!(c.dropped, 8);
         assert_eq!(c.width(), 8);
         let means_sum: f64 = c.means.iter().sum();
-        assert!(
-            (means_sum - 1.0).abs() < 1e-12,
-            "means sum to one by partition of unity"
-        );
+        assert!((means_sum - 1.0).abs() < 1e-12, "means sum to one by partition of unity");
         let mut sums = vec![0.0; c.width()];
         let mut row = vec![0.0; c.width()];
         for &xi in &x {

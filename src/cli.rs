@@ -4,7 +4,11 @@ use clap::{Parser, Subcommand};
 use std::path::PathBuf;
 
 #[derive(Debug, Parser)]
-#[command(name = "knotwise", version, about = "Partially linear additive models with B-spline smooth terms: classical and robust fits, basis-size selection, outlier sensitivity and a reproducible report, from one study spec.")]
+#[command(
+    name = "knotwise",
+    version,
+    about = "Partially linear additive models with B-spline smooth terms: classical and robust fits, basis-size selection, outlier sensitivity and a reproducible report, from one study spec."
+)]
 pub struct Cli {
     #[command(subcommand)]
     pub command: Command,
@@ -27,9 +31,7 @@ pub enum Command {
         quiet: bool,
     },
     /// Check the spec and the data and print the resolved spec; fits nothing, writes nothing.
-    Check {
-        spec: PathBuf,
-    },
+    Check { spec: PathBuf },
     /// Rerun the study recorded in an output folder and say whether every digest still matches.
     Verify {
         /// An output folder written by `knotwise run`.

@@ -61,7 +61,12 @@ pub fn diff(a: &Value, b: &Value, tol: Tolerance) -> Vec<Difference> {
     let mut out = Vec::new();
     for key in ["/study/n-rows-used", "/schema"] {
         if a.pointer(key) != b.pointer(key) {
-            out.push(Difference { what: key.trim_start_matches('/').replace('/', "."), a: text(a.pointer(key)), b: text(b.pointer(key)), beyond: true });
+            out.push(Difference {
+                what: key.trim_start_matches('/').replace('/', "."),
+                a: text(a.pointer(key)),
+                b: text(b.pointer(key)),
+                beyond: true,
+            });
         }
     }
     for fit in FITS {
@@ -86,19 +91,40 @@ pub fn diff(a: &Value, b: &Value, tol: Tolerance) -> Vec<Difference> {
                     match cb.iter().find(|d| text(d.get("name")) == name) {
                         Some(d) => {
                             number(&mut out, format!("{fit}: {name}"), c.get("estimate"), d.get("estimate"), tol);
-                            number(&mut out, format!("{fit}: {name} (std. error)"), c.get("std-error"), d.get("std-error"), tol);
+                            number(
+                                &mut out,
+                                format!("{fit}: {name} (std. error)"),
+                                c.get("std-error"),
+                                d.get("std-error"),
+                                tol,
+                            );
                         }
-                        None => out.push(Difference { what: format!("{fit}: {name}"), a: text(c.get("estimate")), b: "absent".into(), beyond: true }),
+                        None => out.push(Difference {
+                            what: format!("{fit}: {name}"),
+                            a: text(c.get("estimate")),
+                            b: "absent".into(),
+                            beyond: true,
+                        }),
                     }
                 }
                 for d in &cb {
                     let name = text(d.get("name"));
                     if !ca.iter().any(|c| text(c.get("name")) == name) {
-                        out.push(Difference { what: format!("{fit}: {name}"), a: "absent".into(), b: text(d.get("estimate")), beyond: true });
+                        out.push(Difference {
+                            what: format!("{fit}: {name}"),
+                            a: "absent".into(),
+                            b: text(d.get("estimate")),
+                            beyond: true,
+                        });
                     }
                 }
             }
-            _ => out.push(Difference { what: format!("{fit} fit"), a: text(fa.map(|_| &Value::Bool(true))).replace("true", "present"), b: text(fb.map(|_| &Value::Bool(true))).replace("true", "present"), beyond: true }),
+            _ => out.push(Difference {
+                what: format!("{fit} fit"),
+                a: text(fa.map(|_| &Value::Bool(true))).replace("true", "present"),
+                b: text(fb.map(|_| &Value::Bool(true))).replace("true", "present"),
+                beyond: true,
+            }),
         }
     }
     let ra = flagged_rows(a);
@@ -106,8 +132,19 @@ pub fn diff(a: &Value, b: &Value, tol: Tolerance) -> Vec<Difference> {
     let only_a: Vec<&String> = ra.iter().filter(|r| !rb.contains(r)).collect();
     let only_b: Vec<&String> = rb.iter().filter(|r| !ra.contains(r)).collect();
     if !only_a.is_empty() || !only_b.is_empty() {
-        let list = |v: &[&String]| if v.is_empty() { "—".to_string() } else { v.iter().map(|s| s.as_str()).collect::<Vec<_>>().join(", ") };
-        out.push(Difference { what: "flagged rows (only in A | only in B)".into(), a: list(&only_a), b: list(&only_b), beyond: true });
+        let list = |v: &[&String]| {
+            if v.is_empty() {
+                "—".to_string()
+            } else {
+                v.iter().map(|s| s.as_str()).collect::<Vec<_>>().join(", ")
+            }
+        };
+        out.push(Difference {
+            what: "flagged rows (only in A | only in B)".into(),
+            a: list(&only_a),
+            b: list(&only_b),
+            beyond: true,
+        });
     }
     out
 }

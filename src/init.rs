@@ -53,7 +53,9 @@ fn profile(path: &Path, display: &str) -> Result<Vec<ColumnProfile>> {
                         };
                         out.push(ColumnProfile { name, numeric: false, distinct, note: None });
                     }
-                    Err(e) => out.push(ColumnProfile { name, numeric: false, distinct: 0, note: Some(e.what().to_string()) }),
+                    Err(e) => {
+                        out.push(ColumnProfile { name, numeric: false, distinct: 0, note: Some(e.what().to_string()) })
+                    }
                 }
             }
         }
@@ -93,7 +95,11 @@ pub fn draft_spec(path: &Path, response: Option<&str>) -> Result<String> {
         }
         None => match cols.iter().find(|c| c.numeric) {
             Some(c) => c.name.clone(),
-            None => return Err(Error::new("no numeric column to use as the response").at(display).hint("a response must be numeric")),
+            None => {
+                return Err(Error::new("no numeric column to use as the response")
+                    .at(display)
+                    .hint("a response must be numeric"))
+            }
         },
     };
     let mut s = String::new();
@@ -111,11 +117,23 @@ pub fn draft_spec(path: &Path, response: Option<&str>) -> Result<String> {
     let mut skipped = String::new();
     for c in cols.iter().filter(|c| c.name != resp) {
         if let Some(note) = &c.note {
-            skipped.push_str(&format!("#   {}: not proposed ({})\n", c.name.replace('\n', " "), note.replace('\n', " ")));
+            skipped.push_str(&format!(
+                "#   {}: not proposed ({})\n",
+                c.name.replace('\n', " "),
+                note.replace('\n', " ")
+            ));
         } else if c.numeric && c.distinct >= SMOOTH_MIN_DISTINCT {
-            smooth.push_str(&format!("  - column: {}   # numeric, {} distinct values\n", yaml_string(&c.name), c.distinct));
+            smooth.push_str(&format!(
+                "  - column: {}   # numeric, {} distinct values\n",
+                yaml_string(&c.name),
+                c.distinct
+            ));
         } else if c.numeric && c.distinct >= 2 {
-            linear.push_str(&format!("  - column: {}   # numeric, {} distinct values\n", yaml_string(&c.name), c.distinct));
+            linear.push_str(&format!(
+                "  - column: {}   # numeric, {} distinct values\n",
+                yaml_string(&c.name),
+                c.distinct
+            ));
         } else if !c.numeric && c.distinct >= 2 && c.distinct <= 50 {
             linear.push_str(&format!(
                 "  - column: {}   # text, {} levels\n    categorical: true\n",
@@ -123,7 +141,11 @@ pub fn draft_spec(path: &Path, response: Option<&str>) -> Result<String> {
                 c.distinct
             ));
         } else {
-            skipped.push_str(&format!("#   {}: not proposed ({} distinct values)\n", c.name.replace('\n', " "), c.distinct));
+            skipped.push_str(&format!(
+                "#   {}: not proposed ({} distinct values)\n",
+                c.name.replace('\n', " "),
+                c.distinct
+            ));
         }
     }
     s.push_str(if linear.is_empty() { "linear: []\n" } else { "linear:\n" });

@@ -19,18 +19,11 @@ fn num(v: &Value) -> f64 {
 }
 
 fn nums(v: &Value) -> Vec<f64> {
-    v.as_array()
-        .unwrap_or_else(|| panic!("not an array: {v}"))
-        .iter()
-        .map(num)
-        .collect()
+    v.as_array().unwrap_or_else(|| panic!("not an array: {v}")).iter().map(num).collect()
 }
 
 fn source(data: &Value) -> String {
-    format!(
-        "{} (scipy {}, numpy {})",
-        data["source"], data["scipy_version"], data["numpy_version"]
-    )
+    format!("{} (scipy {}, numpy {})", data["source"], data["scipy_version"], data["numpy_version"])
 }
 
 #[test]
@@ -44,10 +37,7 @@ fn type_7_quantiles_match_numpy() {
         let (p, want) = (num(&case["prob"]), num(&case["value"]));
         let got = quantile_sorted(&sorted, p);
         // Tolerance 1e-12 absolute on values of order 1–10.
-        assert!(
-            (got - want).abs() <= 1e-12,
-            "quantile at p = {p}: {got} vs {want} from {src}"
-        );
+        assert!((got - want).abs() <= 1e-12, "quantile at p = {p}: {got} vs {want} from {src}");
     }
 }
 
@@ -69,18 +59,12 @@ fn basis_values_match_scipy_design_matrix() {
         let basis = match case["placement"].as_str() {
             Some("quantile") => Basis::for_sample(&sample, degree, size, KnotPlacement::Quantile),
             Some("uniform") => Basis::for_sample(&points, degree, size, KnotPlacement::Uniform),
-            _ => Ok(Basis {
-                degree,
-                knots: knots.clone(),
-            }),
+            _ => Ok(Basis { degree, knots: knots.clone() }),
         }
         .unwrap_or_else(|e| panic!("{name}: {e}"));
         assert_eq!(basis.knots.len(), knots.len(), "{name}");
         for (got, want) in basis.knots.iter().zip(&knots) {
-            assert!(
-                (got - want).abs() <= 1e-12,
-                "{name}: knot {got} vs {want} from {src}"
-            );
+            assert!((got - want).abs() <= 1e-12, "{name}: knot {got} vs {want} from {src}");
         }
         assert_eq!(basis.size(), size);
 
@@ -92,10 +76,7 @@ fn basis_values_match_scipy_design_matrix() {
             assert_eq!(got.len(), want.len(), "{name}");
             for (j, (g, w)) in got.iter().zip(&want).enumerate() {
                 // Tolerance 1e-12 absolute; basis values lie in [0, 1].
-                assert!(
-                    (g - w).abs() <= 1e-12,
-                    "{name}: B_{j}({x}) = {g} vs {w} from {src}"
-                );
+                assert!((g - w).abs() <= 1e-12, "{name}: B_{j}({x}) = {g} vs {w} from {src}");
             }
         }
     }
@@ -118,10 +99,7 @@ fn t_quantiles_match_scipy() {
         let got = t_quantile(p, df);
         worst = worst.max((got - want).abs() / want.abs().max(1.0));
         // Tolerance 1e-10, relative above 1 and absolute below.
-        assert!(
-            close(got, want, 1e-10),
-            "t quantile p = {p}, df = {df}: {got} vs {want} from {src}"
-        );
+        assert!(close(got, want, 1e-10), "t quantile p = {p}, df = {df}: {got} vs {want} from {src}");
     }
     eprintln!("t quantiles: worst scaled difference from scipy {worst:e}");
 }
@@ -138,21 +116,11 @@ fn t_cdf_matches_scipy() {
             worst = worst.max(((got - want) / want).abs());
         }
         // Lower tails only (t ≤ 0): relative tolerance 1e-10, so small tails are checked in full.
-        let ok = if want == 0.0 {
-            got == 0.0
-        } else {
-            ((got - want) / want).abs() <= 1e-10
-        };
-        assert!(
-            ok,
-            "t cdf at t = {t}, df = {df}: {got:e} vs {want:e} from {src}"
-        );
+        let ok = if want == 0.0 { got == 0.0 } else { ((got - want) / want).abs() <= 1e-10 };
+        assert!(ok, "t cdf at t = {t}, df = {df}: {got:e} vs {want:e} from {src}");
         // The upper tail by symmetry, absolute 1e-12 (the continued fraction near df = 1e4 carries a
         // relative error of about 3e-13 in the lower tail, see `EXPANSION_MIN_DF` in src/dist.rs).
-        assert!(
-            (t_cdf(-t, df) - (1.0 - want)).abs() <= 1e-12,
-            "upper t cdf at {t}, df {df} from {src}"
-        );
+        assert!((t_cdf(-t, df) - (1.0 - want)).abs() <= 1e-12, "upper t cdf at {t}, df {df} from {src}");
     }
     eprintln!("t cdf: worst relative difference from scipy {worst:e}");
 }
@@ -161,17 +129,11 @@ fn t_cdf_matches_scipy() {
 fn normal_functions_match_scipy() {
     let data = load("dist/dist_reference.json");
     let src = source(&data);
-    for case in data["normal_quantiles"]
-        .as_array()
-        .expect("normal_quantiles")
-    {
+    for case in data["normal_quantiles"].as_array().expect("normal_quantiles") {
         let (p, want) = (num(&case["p"]), num(&case["value"]));
         let got = normal_quantile(p);
         // Relative 1e-15: AS 241 and scipy's ndtri each claim about 1e-16.
-        assert!(
-            ((got - want) / want).abs() <= 1e-15 || got == want,
-            "Φ⁻¹({p}) = {got} vs {want} from {src}"
-        );
+        assert!(((got - want) / want).abs() <= 1e-15 || got == want, "Φ⁻¹({p}) = {got} vs {want} from {src}");
     }
     for case in data["normal_cdfs"].as_array().expect("normal_cdfs") {
         let (x, want) = (num(&case["x"]), num(&case["value"]));
@@ -181,9 +143,6 @@ fn normal_functions_match_scipy() {
         // written: 7e-15 at x = −10, 6e-14 at −30, 1.1e-13 at −37). knotwise's own tail is checked
         // against mpmath values to 1e-15 in the unit tests of src/dist.rs.
         let tol = 1e-15_f64.max(2.0 * x * x * f64::EPSILON);
-        assert!(
-            ((got - want) / want).abs() <= tol,
-            "Φ({x}) = {got:e} vs {want:e} from {src}"
-        );
+        assert!(((got - want) / want).abs() <= tol, "Φ({x}) = {got:e} vs {want:e} from {src}");
     }
 }

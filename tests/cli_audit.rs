@@ -26,10 +26,15 @@ fn copy_demo(dir: &Path) -> PathBuf {
 
 fn knotwise(args: &[&str], cwd: &Path) -> (i32, String, String) {
     let out = Command::new(env!("CARGO_BIN_EXE_knotwise")).args(args).current_dir(cwd).output().unwrap();
-    (out.status.code().unwrap_or(-1), String::from_utf8_lossy(&out.stdout).into_owned(), String::from_utf8_lossy(&out.stderr).into_owned())
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
 }
 
-const FILES: [&str; 6] = ["report.html", "results.json", "rows.csv", "study.resolved.yaml", "rerun.json", "manifest.sha256"];
+const FILES: [&str; 6] =
+    ["report.html", "results.json", "rows.csv", "study.resolved.yaml", "rerun.json", "manifest.sha256"];
 
 fn read(p: &Path) -> Vec<u8> {
     std::fs::read(p).unwrap_or_else(|e| panic!("{}: {e}", p.display()))
@@ -57,7 +62,11 @@ fn two_runs_give_identical_bytes_and_other_folders_the_same_digest() {
             continue; // rerun.json records the path back to the spec, which differs by folder
         }
         assert_eq!(read(&d.join("a").join(f)), read(&d.join("b").join(f)), "{f} differs between two runs");
-        assert_eq!(read(&d.join("a").join(f)), read(&d.join("nested/deeper/c").join(f)), "{f} differs with another output folder");
+        assert_eq!(
+            read(&d.join("a").join(f)),
+            read(&d.join("nested/deeper/c").join(f)),
+            "{f} differs with another output folder"
+        );
     }
     assert_eq!(digest(&d.join("a")), digest(&d.join("nested/deeper/c")));
     // Rerunning into the same folder replaces it with identical bytes.
@@ -94,7 +103,8 @@ fn verify_passes_then_names_data_spec_and_edited_files() {
     assert_eq!(code, 1);
     assert!(out.contains("report.html was edited"), "{out}");
     if Command::new("sha256sum").arg("--version").output().is_ok() {
-        let bad = Command::new("sha256sum").args(["-c", "manifest.sha256"]).current_dir(d.join("out")).output().unwrap();
+        let bad =
+            Command::new("sha256sum").args(["-c", "manifest.sha256"]).current_dir(d.join("out")).output().unwrap();
         assert!(!bad.status.success(), "sha256sum -c passed on an edited report");
     }
 
@@ -180,7 +190,11 @@ fn a_failed_run_writes_nothing() {
     let (code, _, err) = knotwise(&["run", spec.to_str().unwrap(), "--out", "out"], &d);
     assert_eq!(code, 2, "{err}");
     assert!(!d.join("out").exists(), "a failed run left an output folder");
-    let leftovers: Vec<_> = std::fs::read_dir(&d).unwrap().filter_map(|e| e.ok()).filter(|e| e.file_name().to_string_lossy().contains(".tmp-")).collect();
+    let leftovers: Vec<_> = std::fs::read_dir(&d)
+        .unwrap()
+        .filter_map(|e| e.ok())
+        .filter(|e| e.file_name().to_string_lossy().contains(".tmp-"))
+        .collect();
     assert!(leftovers.is_empty(), "temporary folder left behind");
     let _ = std::fs::remove_dir_all(&d);
 }

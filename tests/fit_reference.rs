@@ -14,7 +14,10 @@ use knotwise::select;
 fn fixture_terms() -> ModelTerms {
     ModelTerms {
         response: "y".into(),
-        linear: vec![LinearSpec { column: "z".into(), categorical: false }, LinearSpec { column: "g".into(), categorical: true }],
+        linear: vec![
+            LinearSpec { column: "z".into(), categorical: false },
+            LinearSpec { column: "g".into(), categorical: true },
+        ],
         smooth: vec![
             SmoothSpec { column: "x1".into(), degree: 3, knots: KnotPlacement::Quantile },
             SmoothSpec { column: "x2".into(), degree: 3, knots: KnotPlacement::Quantile },
@@ -79,7 +82,10 @@ fn stackloss_frame(reference: &serde_json::Value) -> knotwise::data::Frame {
 fn stackloss_terms() -> ModelTerms {
     ModelTerms {
         response: "stackloss".into(),
-        linear: ["air_flow", "water_temp", "acid_conc"].iter().map(|c| LinearSpec { column: c.to_string(), categorical: false }).collect(),
+        linear: ["air_flow", "water_temp", "acid_conc"]
+            .iter()
+            .map(|c| LinearSpec { column: c.to_string(), categorical: false })
+            .collect(),
         smooth: vec![],
     }
 }
@@ -188,7 +194,10 @@ fn rank_deficient_design_names_the_aliased_columns() {
     let frame = numeric_frame(&[("y", y), ("a", a), ("b", b)]);
     let terms = ModelTerms {
         response: "y".into(),
-        linear: vec![LinearSpec { column: "a".into(), categorical: false }, LinearSpec { column: "b".into(), categorical: false }],
+        linear: vec![
+            LinearSpec { column: "a".into(), categorical: false },
+            LinearSpec { column: "b".into(), categorical: false },
+        ],
         smooth: vec![],
     };
     let design = Design::build(&frame, &terms, &[]).unwrap();

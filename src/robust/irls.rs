@@ -21,9 +21,25 @@ pub struct MEstimate {
     pub termination: Termination,
 }
 #[allow(clippy::too_many_arguments)]
-pub fn m_fixed_scale(_x: &[f64], _n: usize, _p: usize, _y: &[f64], _s: &[f64], _sc: f64, _l: &dyn Loss, _o: &IrlsOptions) -> Result<MEstimate, super::RobustError> {
+pub fn m_fixed_scale(
+    _x: &[f64],
+    _n: usize,
+    _p: usize,
+    _y: &[f64],
+    _s: &[f64],
+    _sc: f64,
+    _l: &dyn Loss,
+    _o: &IrlsOptions,
+) -> Result<MEstimate, super::RobustError> {
     todo!()
 }
-pub fn huber_joint(_x: &[f64], _n: usize, _p: usize, _y: &[f64], _k: f64, _o: &IrlsOptions) -> Result<MEstimate, super::RobustError> {
+pub fn huber_joint(
+    _x: &[f64],
+    _n: usize,
+    _p: usize,
+    _y: &[f64],
+    _k: f64,
+    _o: &IrlsOptions,
+) -> Result<MEstimate, super::RobustError> {
     todo!()
 }

@@ -25,6 +25,12 @@ pub struct SEstimate {
     pub singular_redraws: usize,
     pub search_rows: usize,
 }
-pub fn s_estimate(_x: &[f64], _n: usize, _p: usize, _y: &[f64], _o: &SOptions) -> Result<SEstimate, super::RobustError> {
+pub fn s_estimate(
+    _x: &[f64],
+    _n: usize,
+    _p: usize,
+    _y: &[f64],
+    _o: &SOptions,
+) -> Result<SEstimate, super::RobustError> {
     todo!()
 }

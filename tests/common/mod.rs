@@ -25,7 +25,10 @@ pub fn numeric_frame(cols: &[(&str, Vec<f64>)]) -> Frame {
     let n = cols[0].1.len();
     Frame {
         n_read: n,
-        columns: cols.iter().map(|(name, v)| Column { name: name.to_string(), data: ColumnData::Numeric(v.clone()) }).collect(),
+        columns: cols
+            .iter()
+            .map(|(name, v)| Column { name: name.to_string(), data: ColumnData::Numeric(v.clone()) })
+            .collect(),
         lines: (0..n as u64).map(|i| i + 2).collect(),
         ids: (0..n).map(|i| (i + 1).to_string()).collect(),
         dropped: vec![],
