@@ -537,8 +537,3 @@ mod tests {
     }
 }
 
-/// P(|Z| > z) for standard normal Z.
-pub fn two_sided_normal_tail(z: f64) -> f64 {
-    let _ = z;
-    todo!("robust helper")
-}
