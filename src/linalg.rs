@@ -9,6 +9,9 @@
 //! is the classical one of Golub & Van Loan, *Matrix Computations* (3rd ed. 1996, §5.2 and §12.5,
 //! from memory); nothing here forms X'X except [`normal_solve`], which is documented as the fast path.
 
+// `!(a > b)` is used on purpose: it is true when a is NaN, so an unusable value takes the safe branch.
+#![allow(clippy::neg_cmp_op_on_partial_ord)]
+
 /// Rows processed per block by the streaming QR and by the normal-equation accumulation. Fixed so that
 /// the order of every floating-point operation is independent of n's factorisation and of threads.
 pub const CHUNK_ROWS: usize = 256;
@@ -28,7 +31,10 @@ const ALIAS_TOL: f64 = 1e-6;
 #[derive(Debug, Clone, PartialEq)]
 pub enum LinalgError {
     /// Column `column` is (numerically) a linear combination of the columns in `aliased_with`.
-    RankDeficient { column: usize, aliased_with: Vec<usize> },
+    RankDeficient {
+        column: usize,
+        aliased_with: Vec<usize>,
+    },
     /// Fewer (positively weighted) rows than columns.
     TooFewRows { rows: usize, columns: usize },
     /// A non-finite value in X, y or the weights.
@@ -87,11 +93,33 @@ fn upper_inverse(r: &[f64], p: usize) -> Vec<f64> {
     inv
 }
 
-fn check_inputs(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>) -> Result<usize, LinalgError> {
-    assert_eq!(x.len(), n * p, "linalg: x has {} entries, expected n·p = {}", x.len(), n * p);
-    assert_eq!(y.len(), n, "linalg: y has {} entries, expected n = {n}", y.len());
+fn check_inputs(
+    x: &[f64],
+    n: usize,
+    p: usize,
+    y: &[f64],
+    w: Option<&[f64]>,
+) -> Result<usize, LinalgError> {
+    assert_eq!(
+        x.len(),
+        n * p,
+        "linalg: x has {} entries, expected n·p = {}",
+        x.len(),
+        n * p
+    );
+    assert_eq!(
+        y.len(),
+        n,
+        "linalg: y has {} entries, expected n = {n}",
+        y.len()
+    );
     if let Some(w) = w {
-        assert_eq!(w.len(), n, "linalg: w has {} entries, expected n = {n}", w.len());
+        assert_eq!(
+            w.len(),
+            n,
+            "linalg: w has {} entries, expected n = {n}",
+            w.len()
+        );
     }
     if x.iter().chain(y.iter()).any(|v| !v.is_finite()) {
         return Err(LinalgError::NonFinite);
@@ -108,7 +136,10 @@ fn check_inputs(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>) -> 
         }
     };
     if positive < p {
-        return Err(LinalgError::TooFewRows { rows: positive, columns: p });
+        return Err(LinalgError::TooFewRows {
+            rows: positive,
+            columns: p,
+        });
     }
     Ok(positive)
 }
@@ -120,7 +151,13 @@ fn check_inputs(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>) -> 
 /// [`LinalgError::NonFinite`]. The first column failing the rank test of [`RANK_TOL`] is reported with
 /// the earlier columns that reproduce it. RSS is recomputed at the end as Σ w_i (y_i − x_i'b)² (more
 /// accurate than the rotated-out sum when the fit is nearly exact).
-pub fn qr_solve(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>) -> Result<LeastSquares, LinalgError> {
+pub fn qr_solve(
+    x: &[f64],
+    n: usize,
+    p: usize,
+    y: &[f64],
+    w: Option<&[f64]>,
+) -> Result<LeastSquares, LinalgError> {
     qr_solve_chunked(x, n, p, y, w, CHUNK_ROWS)
 }
 
@@ -137,7 +174,7 @@ pub fn qr_solve_chunked(
     check_inputs(x, n, p, y, w)?;
     let chunk = chunk.max(1);
     let width = p + 1; // augmented with y
-    // Work array: rows 0..p hold [R | Q'y head]; rows p..p+chunk hold the incoming block.
+                       // Work array: rows 0..p hold [R | Q'y head]; rows p..p+chunk hold the incoming block.
     let mut a = vec![0.0; (p + chunk) * width];
     let mut colnorm2 = vec![0.0; p];
 
@@ -165,14 +202,19 @@ pub fn qr_solve_chunked(
         }
     }
 
-    let r: Vec<f64> = (0..p).flat_map(|row| a[row * width..row * width + p].iter().copied()).collect();
+    let r: Vec<f64> = (0..p)
+        .flat_map(|row| a[row * width..row * width + p].iter().copied())
+        .collect();
     let qty: Vec<f64> = (0..p).map(|row| a[row * width + p]).collect();
 
     // Rank test, first deficient column wins.
     for j in 0..p {
         let norm = colnorm2[j].sqrt();
         if r[j * p + j].abs() <= RANK_TOL * norm || norm == 0.0 {
-            return Err(LinalgError::RankDeficient { column: j, aliased_with: aliased_columns(&r, p, j, &colnorm2) });
+            return Err(LinalgError::RankDeficient {
+                column: j,
+                aliased_with: aliased_columns(&r, p, j, &colnorm2),
+            });
         }
     }
 
@@ -259,7 +301,9 @@ fn aliased_columns(r: &[f64], p: usize, j: usize, colnorm2: &[f64]) -> Vec<usize
         }
         c[i] = s / r[i * p + i];
     }
-    (0..j).filter(|&i| c[i].abs() * colnorm2[i].sqrt() > ALIAS_TOL * normj).collect()
+    (0..j)
+        .filter(|&i| c[i].abs() * colnorm2[i].sqrt() > ALIAS_TOL * normj)
+        .collect()
 }
 
 /// Σ w_i (y_i − x_i'b)², summed in row order.
@@ -288,7 +332,13 @@ fn weighted_rss(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>, coe
 /// 1e-12 × (the corresponding diagonal of X'WX) — numerically rank deficient in the squared problem —
 /// the solve falls back to [`qr_solve`], which either succeeds with more accuracy or names the aliased
 /// columns.
-pub fn normal_solve(x: &[f64], n: usize, p: usize, y: &[f64], w: &[f64]) -> Result<Vec<f64>, LinalgError> {
+pub fn normal_solve(
+    x: &[f64],
+    n: usize,
+    p: usize,
+    y: &[f64],
+    w: &[f64],
+) -> Result<Vec<f64>, LinalgError> {
     check_inputs(x, n, p, y, Some(w))?;
     let width = p + 1;
     // Upper triangle of [X'WX | X'Wy], row-major width p+1.
@@ -437,7 +487,13 @@ mod tests {
     fn zero_column_is_rank_deficient_with_no_aliases() {
         let x = [1.0, 0.0, 1.0, 0.0, 1.0, 0.0];
         let e = qr_solve(&x, 3, 2, &[1.0, 2.0, 3.0], None).unwrap_err();
-        assert_eq!(e, LinalgError::RankDeficient { column: 1, aliased_with: vec![] });
+        assert_eq!(
+            e,
+            LinalgError::RankDeficient {
+                column: 1,
+                aliased_with: vec![]
+            }
+        );
     }
 
     #[test]
@@ -445,9 +501,18 @@ mod tests {
         let x = [1.0, 2.0, 3.0, 4.0];
         assert_eq!(
             qr_solve(&x, 2, 2, &[1.0, 2.0], Some(&[1.0, 0.0])).unwrap_err(),
-            LinalgError::TooFewRows { rows: 1, columns: 2 }
+            LinalgError::TooFewRows {
+                rows: 1,
+                columns: 2
+            }
         );
-        assert_eq!(qr_solve(&x, 2, 2, &[1.0, f64::NAN], None).unwrap_err(), LinalgError::NonFinite);
-        assert_eq!(normal_solve(&x, 2, 2, &[1.0, 2.0], &[1.0, -1.0]).unwrap_err(), LinalgError::NonFinite);
+        assert_eq!(
+            qr_solve(&x, 2, 2, &[1.0, f64::NAN], None).unwrap_err(),
+            LinalgError::NonFinite
+        );
+        assert_eq!(
+            normal_solve(&x, 2, 2, &[1.0, 2.0], &[1.0, -1.0]).unwrap_err(),
+            LinalgError::NonFinite
+        );
     }
 }

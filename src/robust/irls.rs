@@ -5,6 +5,9 @@
 //! reported solve once more by Householder QR with the final weights. Pure functions: design, loss,
 //! scale and options in, an [`MEstimate`] out.
 
+// `!(a > b)` is used on purpose: it is true when a is NaN, so an unusable value takes the safe branch.
+#![allow(clippy::neg_cmp_op_on_partial_ord)]
+
 use super::loss::Loss;
 use super::scale::mad_about_zero;
 use super::{check_data, exact_fit_threshold, RobustError};
@@ -25,7 +28,10 @@ pub struct IrlsOptions {
 
 impl Default for IrlsOptions {
     fn default() -> Self {
-        IrlsOptions { max_iter: 200, tol: 1e-10 }
+        IrlsOptions {
+            max_iter: 200,
+            tol: 1e-10,
+        }
     }
 }
 
@@ -49,7 +55,9 @@ fn weights_into(loss: &dyn Loss, r: &[f64], s: f64, w: &mut [f64]) {
 }
 
 fn max_change(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b.iter()).fold(0.0f64, |m, (u, v)| m.max((u - v).abs()))
+    a.iter()
+        .zip(b.iter())
+        .fold(0.0f64, |m, (u, v)| m.max((u - v).abs()))
 }
 
 /// The M-estimate with the scale held fixed: minimise Σ ρ((y_i − x_i'b)/s) by IRLS from `start`.
@@ -71,7 +79,12 @@ pub fn m_fixed_scale(
     opts: &IrlsOptions,
 ) -> Result<MEstimate, RobustError> {
     check_data(x, n, p, y)?;
-    assert_eq!(start.len(), p, "m_fixed_scale: start has {} entries, expected p = {p}", start.len());
+    assert_eq!(
+        start.len(),
+        p,
+        "m_fixed_scale: start has {} entries, expected p = {p}",
+        start.len()
+    );
     if !scale.is_finite() || scale < 0.0 || start.iter().any(|v| !v.is_finite()) {
         return Err(RobustError::NonFinite);
     }
@@ -88,7 +101,9 @@ pub fn m_fixed_scale(
     }
     let mut w = vec![0.0; n];
     let mut r_new = vec![0.0; n];
-    let mut termination = Termination::IterationLimit { iterations: opts.max_iter };
+    let mut termination = Termination::IterationLimit {
+        iterations: opts.max_iter,
+    };
     for it in 1..=opts.max_iter {
         weights_into(loss, &r, scale, &mut w);
         let next = normal_solve(x, n, p, y, &w)?;
@@ -105,7 +120,13 @@ pub fn m_fixed_scale(
     let coef = qr_solve(x, n, p, y, Some(&w))?.coef;
     residuals(x, n, p, y, &coef, &mut r);
     weights_into(loss, &r, scale, &mut w);
-    Ok(MEstimate { coef, residuals: r, weights: w, scale, termination })
+    Ok(MEstimate {
+        coef,
+        residuals: r,
+        weights: w,
+        scale,
+        termination,
+    })
 }
 
 /// Huber's M-estimate with the scale re-estimated at every step as the MAD about zero of the current
@@ -145,7 +166,9 @@ pub fn huber_joint(
     if !(s > tiny) {
         return Ok(collapsed(coef, r, 0));
     }
-    let mut termination = Termination::IterationLimit { iterations: opts.max_iter };
+    let mut termination = Termination::IterationLimit {
+        iterations: opts.max_iter,
+    };
     for it in 1..=opts.max_iter {
         weights_into(&loss, &r, s, &mut w);
         coef = normal_solve(x, n, p, y, &w)?;
@@ -173,5 +196,11 @@ pub fn huber_joint(
         return Ok(collapsed(coef, r, 0));
     }
     weights_into(&loss, &r, s_final, &mut w);
-    Ok(MEstimate { coef, residuals: r, weights: w, scale: s_final, termination })
+    Ok(MEstimate {
+        coef,
+        residuals: r,
+        weights: w,
+        scale: s_final,
+        termination,
+    })
 }

@@ -14,6 +14,9 @@
 //!   is homogeneous in ψ) nor Huber's sandwich covariance (it depends on ψ only through the ratio
 //!   E[ψ²] / (E[ψ'])², in which the constant cancels).
 
+// `!(a > b)` is used on purpose: it is true when a is NaN, so an unusable value takes the safe branch.
+#![allow(clippy::neg_cmp_op_on_partial_ord)]
+
 use std::f64::consts::{FRAC_1_SQRT_2, PI};
 
 /// A loss ρ with its derivative ψ, weight ψ(z)/z and ψ'.
@@ -85,7 +88,9 @@ impl Huber {
     }
     /// k solved for the requested normal efficiency by [`huber_tuning`].
     pub fn with_efficiency(efficiency: f64) -> Self {
-        Huber { k: huber_tuning(efficiency) }
+        Huber {
+            k: huber_tuning(efficiency),
+        }
     }
 }
 
@@ -147,7 +152,9 @@ impl Bisquare {
     }
     /// c solved for the requested normal efficiency by [`bisquare_tuning`].
     pub fn with_efficiency(efficiency: f64) -> Self {
-        Bisquare { c: bisquare_tuning(efficiency) }
+        Bisquare {
+            c: bisquare_tuning(efficiency),
+        }
     }
 }
 
@@ -279,7 +286,12 @@ pub(crate) fn bisquare_expected_rho(c: f64) -> f64 {
 /// Bisection for an increasing function f on [lo, hi]: the root of f(t) = target, clamped to the
 /// bracket when the target lies outside f's range there. Stops at a bracket width of 1e-13 relative
 /// (or 200 halvings), so the result is a deterministic function of the inputs.
-pub(crate) fn solve_increasing(f: impl Fn(f64) -> f64, target: f64, mut lo: f64, mut hi: f64) -> f64 {
+pub(crate) fn solve_increasing(
+    f: impl Fn(f64) -> f64,
+    target: f64,
+    mut lo: f64,
+    mut hi: f64,
+) -> f64 {
     if !target.is_finite() {
         return lo;
     }
@@ -306,14 +318,22 @@ pub(crate) fn solve_increasing(f: impl Fn(f64) -> f64, target: f64, mut lo: f64,
 /// Huber k giving the requested normal efficiency (1.345 at 0.95; Huber 1981). The efficiency is
 /// clamped to [2/π, 0.9999] (2/π is the k → 0 limit, the median); never panics.
 pub fn huber_tuning(efficiency: f64) -> f64 {
-    let e = if efficiency.is_finite() { efficiency.clamp(2.0 / PI, 0.9999) } else { 0.95 };
+    let e = if efficiency.is_finite() {
+        efficiency.clamp(2.0 / PI, 0.9999)
+    } else {
+        0.95
+    };
     solve_increasing(huber_efficiency, e, 1e-6, 20.0)
 }
 
 /// Bisquare c giving the requested normal efficiency (4.685 at 0.95, 3.4437 at 0.85; Yohai 1987,
 /// Maronna et al. 2006, from memory). The efficiency is clamped to [0.01, 0.9999]; never panics.
 pub fn bisquare_tuning(efficiency: f64) -> f64 {
-    let e = if efficiency.is_finite() { efficiency.clamp(0.01, 0.9999) } else { 0.95 };
+    let e = if efficiency.is_finite() {
+        efficiency.clamp(0.01, 0.9999)
+    } else {
+        0.95
+    };
     solve_increasing(bisquare_efficiency, e, 0.05, 100.0)
 }
 
@@ -328,16 +348,28 @@ mod tests {
         for i in -80..=80 {
             let z = i as f64 * 0.0731 + 0.0017;
             let w = loss.weight(z) * z;
-            assert!((w - loss.psi(z)).abs() <= 1e-14 * (1.0 + z.abs()), "{} weight·z at {z}", loss.name());
+            assert!(
+                (w - loss.psi(z)).abs() <= 1e-14 * (1.0 + z.abs()),
+                "{} weight·z at {z}",
+                loss.name()
+            );
             // Skip points within h of a kink (Huber at ±k, bisquare at ±c for ψ').
             let t = loss.tuning();
             if t > 0.0 && (z.abs() - t).abs() < 2.0 * h {
                 continue;
             }
             let drho = (loss.rho(z + h) - loss.rho(z - h)) / (2.0 * h);
-            assert!((drho * loss.psi_scale() - loss.psi(z)).abs() < 1e-7, "{} ψ vs ρ' at {z}", loss.name());
+            assert!(
+                (drho * loss.psi_scale() - loss.psi(z)).abs() < 1e-7,
+                "{} ψ vs ρ' at {z}",
+                loss.name()
+            );
             let dpsi = (loss.psi(z + h) - loss.psi(z - h)) / (2.0 * h);
-            assert!((dpsi - loss.psi_prime(z)).abs() < 1e-7, "{} ψ' at {z}", loss.name());
+            assert!(
+                (dpsi - loss.psi_prime(z)).abs() < 1e-7,
+                "{} ψ' at {z}",
+                loss.name()
+            );
         }
     }
 
@@ -369,10 +401,22 @@ mod tests {
     #[test]
     fn tuning_constants() {
         // Huber (1981): 1.345 at 95% (the tabled value is rounded to 3 decimals).
-        assert!((huber_tuning(0.95) - 1.345).abs() < 1e-3, "{}", huber_tuning(0.95));
+        assert!(
+            (huber_tuning(0.95) - 1.345).abs() < 1e-3,
+            "{}",
+            huber_tuning(0.95)
+        );
         // Yohai (1987) / Maronna et al. (2006): 4.685 at 95%, 3.4437 at 85%.
-        assert!((bisquare_tuning(0.95) - 4.685).abs() < 1e-3, "{}", bisquare_tuning(0.95));
-        assert!((bisquare_tuning(0.85) - 3.4437).abs() < 1e-4, "{}", bisquare_tuning(0.85));
+        assert!(
+            (bisquare_tuning(0.95) - 4.685).abs() < 1e-3,
+            "{}",
+            bisquare_tuning(0.95)
+        );
+        assert!(
+            (bisquare_tuning(0.85) - 3.4437).abs() < 1e-4,
+            "{}",
+            bisquare_tuning(0.85)
+        );
         assert!((huber_efficiency(huber_tuning(0.9)) - 0.9).abs() < 1e-10);
         // Clamped, never a panic.
         assert!(huber_tuning(0.1).is_finite() && bisquare_tuning(f64::NAN).is_finite());

@@ -21,7 +21,10 @@ pub enum RobustError {
     /// The (weighted) design is rank deficient: column `column` is a combination of `aliased_with`.
     /// In a weighted step this can happen when the robust weights zero out every row that identifies a
     /// column (e.g. all rows of a small category are outliers).
-    RankDeficient { column: usize, aliased_with: Vec<usize> },
+    RankDeficient {
+        column: usize,
+        aliased_with: Vec<usize>,
+    },
     /// Huber's sandwich needs mean ψ'(r/s) > 0; it was `mean_psi_prime` (e.g. every scaled residual
     /// beyond the Huber corner, or in the decreasing part of the bisquare).
     DegenerateCovariance { mean_psi_prime: f64 },
@@ -30,7 +33,13 @@ pub enum RobustError {
 impl From<LinalgError> for RobustError {
     fn from(e: LinalgError) -> Self {
         match e {
-            LinalgError::RankDeficient { column, aliased_with } => RobustError::RankDeficient { column, aliased_with },
+            LinalgError::RankDeficient {
+                column,
+                aliased_with,
+            } => RobustError::RankDeficient {
+                column,
+                aliased_with,
+            },
             LinalgError::TooFewRows { rows, columns } => RobustError::TooFewRows { rows, columns },
             LinalgError::NonFinite => RobustError::NonFinite,
         }
@@ -40,10 +49,24 @@ impl From<LinalgError> for RobustError {
 /// Data checks shared by every robust entry point: shapes (a programming error, so asserted), finite
 /// values, and n > p.
 pub(crate) fn check_data(x: &[f64], n: usize, p: usize, y: &[f64]) -> Result<(), RobustError> {
-    assert_eq!(x.len(), n * p, "robust: x has {} entries, expected n·p = {}", x.len(), n * p);
-    assert_eq!(y.len(), n, "robust: y has {} entries, expected n = {n}", y.len());
+    assert_eq!(
+        x.len(),
+        n * p,
+        "robust: x has {} entries, expected n·p = {}",
+        x.len(),
+        n * p
+    );
+    assert_eq!(
+        y.len(),
+        n,
+        "robust: y has {} entries, expected n = {n}",
+        y.len()
+    );
     if n <= p {
-        return Err(RobustError::TooFewRows { rows: n, columns: p });
+        return Err(RobustError::TooFewRows {
+            rows: n,
+            columns: p,
+        });
     }
     if x.iter().chain(y.iter()).any(|v| !v.is_finite()) {
         return Err(RobustError::NonFinite);

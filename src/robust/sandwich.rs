@@ -3,6 +3,9 @@
 //! Owns the covariance of M- and MM-estimates of regression only; the (X'X)⁻¹ it scales comes from
 //! `linalg` (`LeastSquares::xtx_inverse` of the unweighted design).
 
+// `!(a > b)` is used on purpose: it is true when a is NaN, so an unusable value takes the safe branch.
+#![allow(clippy::neg_cmp_op_on_partial_ord)]
+
 use super::loss::Loss;
 use super::RobustError;
 
@@ -29,13 +32,37 @@ pub fn huber_sandwich(
     loss: &dyn Loss,
     xtx_inv: &[f64],
 ) -> Result<Vec<f64>, RobustError> {
-    assert_eq!(x.len(), n * p, "huber_sandwich: x has {} entries, expected n·p", x.len());
-    assert_eq!(residuals.len(), n, "huber_sandwich: {} residuals, expected n = {n}", residuals.len());
-    assert_eq!(xtx_inv.len(), p * p, "huber_sandwich: xtx_inv has {} entries, expected p²", xtx_inv.len());
+    assert_eq!(
+        x.len(),
+        n * p,
+        "huber_sandwich: x has {} entries, expected n·p",
+        x.len()
+    );
+    assert_eq!(
+        residuals.len(),
+        n,
+        "huber_sandwich: {} residuals, expected n = {n}",
+        residuals.len()
+    );
+    assert_eq!(
+        xtx_inv.len(),
+        p * p,
+        "huber_sandwich: xtx_inv has {} entries, expected p²",
+        xtx_inv.len()
+    );
     if n <= p {
-        return Err(RobustError::TooFewRows { rows: n, columns: p });
+        return Err(RobustError::TooFewRows {
+            rows: n,
+            columns: p,
+        });
     }
-    if !scale.is_finite() || scale < 0.0 || residuals.iter().chain(xtx_inv.iter()).any(|v| !v.is_finite()) {
+    if !scale.is_finite()
+        || scale < 0.0
+        || residuals
+            .iter()
+            .chain(xtx_inv.iter())
+            .any(|v| !v.is_finite())
+    {
         return Err(RobustError::NonFinite);
     }
     if scale == 0.0 {

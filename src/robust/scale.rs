@@ -3,6 +3,9 @@
 //! Owns residual scale estimation only; every estimator returns a [`ScaleEstimate`] (value and how it
 //! stopped), never a bare float. No design matrices here.
 
+// `!(a > b)` is used on purpose: it is true when a is NaN, so an unusable value takes the safe branch.
+#![allow(clippy::neg_cmp_op_on_partial_ord)]
+
 use super::loss::{bisquare_expected_rho, solve_increasing, Bisquare, Loss};
 use crate::termination::Termination;
 
@@ -36,7 +39,13 @@ fn median_of(mut v: Vec<f64>) -> f64 {
         return hi;
     }
     // The lower middle is the maximum of the left part after selection.
-    let lo = v[..mid].iter().copied().fold(f64::NEG_INFINITY, |a, b| if b.total_cmp(&a).is_gt() { b } else { a });
+    let lo = v[..mid].iter().copied().fold(f64::NEG_INFINITY, |a, b| {
+        if b.total_cmp(&a).is_gt() {
+            b
+        } else {
+            a
+        }
+    });
     0.5 * (lo + hi)
 }
 
@@ -49,7 +58,11 @@ pub fn mad_about_zero(r: &[f64]) -> f64 {
 /// M-scale is consistent at the normal (Rousseeuw & Yohai 1984: c = 1.5476 for b = 0.5). b is clamped
 /// to [1e-6, 1 − 1e-6]; never panics.
 pub fn bisquare_mscale_constant(b: f64) -> f64 {
-    let b = if b.is_finite() { b.clamp(1e-6, 1.0 - 1e-6) } else { MSCALE_B };
+    let b = if b.is_finite() {
+        b.clamp(1e-6, 1.0 - 1e-6)
+    } else {
+        MSCALE_B
+    };
     // E ρ_c(Z) decreases in c; solve the increasing −E ρ_c(Z) = −b.
     solve_increasing(|c| -bisquare_expected_rho(c), -b, 1e-3, 1e3)
 }
@@ -63,9 +76,19 @@ pub fn bisquare_mscale_constant(b: f64) -> f64 {
 /// `max_iter` updates (`IterationLimit`). When at most a fraction b of the residuals are non-zero the
 /// equation has no positive root (the mean tends to that fraction as s → 0): the result is value 0 with
 /// `ScaleCollapsed`. Non-finite residuals count as ρ = 1 (outliers), so the value stays finite.
-pub fn m_scale(r: &[f64], c: f64, b: f64, start: Option<f64>, max_iter: usize, tol: f64) -> ScaleEstimate {
+pub fn m_scale(
+    r: &[f64],
+    c: f64,
+    b: f64,
+    start: Option<f64>,
+    max_iter: usize,
+    tol: f64,
+) -> ScaleEstimate {
     let n = r.len();
-    let collapsed = |iterations| ScaleEstimate { value: 0.0, termination: Termination::ScaleCollapsed { iterations } };
+    let collapsed = |iterations| ScaleEstimate {
+        value: 0.0,
+        termination: Termination::ScaleCollapsed { iterations },
+    };
     if n == 0 || !(c > 0.0) || !(b > 0.0 && b < 1.0) {
         return collapsed(0);
     }
@@ -107,10 +130,18 @@ pub fn m_scale(r: &[f64], c: f64, b: f64, start: Option<f64>, max_iter: usize, t
         let change = (s_new / s - 1.0).abs();
         s = s_new;
         if change < tol {
-            return ScaleEstimate { value: s, termination: Termination::Converged { iterations: it } };
+            return ScaleEstimate {
+                value: s,
+                termination: Termination::Converged { iterations: it },
+            };
         }
     }
-    ScaleEstimate { value: s, termination: Termination::IterationLimit { iterations: max_iter } }
+    ScaleEstimate {
+        value: s,
+        termination: Termination::IterationLimit {
+            iterations: max_iter,
+        },
+    }
 }
 
 /// Mean ρ_c(r_i/s) (the left-hand side of the M-scale equation), 1/n convention.
@@ -144,7 +175,9 @@ mod tests {
 
     #[test]
     fn mscale_solves_equation_and_is_equivariant() {
-        let r: Vec<f64> = (0..101).map(|i| ((i as f64) * 0.37).sin() * (1.0 + (i % 7) as f64)).collect();
+        let r: Vec<f64> = (0..101)
+            .map(|i| ((i as f64) * 0.37).sin() * (1.0 + (i % 7) as f64))
+            .collect();
         let s = m_scale(&r, MSCALE_C, MSCALE_B, None, 1000, 1e-14);
         assert!(matches!(s.termination, Termination::Converged { .. }));
         assert!((mean_rho(&r, MSCALE_C, s.value) - 0.5).abs() < 1e-12);
@@ -157,12 +190,25 @@ mod tests {
     fn mscale_collapses() {
         let r = [0.0, 0.0, 0.0, 1.0, -2.0];
         let s = m_scale(&r, MSCALE_C, MSCALE_B, None, 100, 1e-12);
-        assert_eq!(s, ScaleEstimate { value: 0.0, termination: Termination::ScaleCollapsed { iterations: 0 } });
+        assert_eq!(
+            s,
+            ScaleEstimate {
+                value: 0.0,
+                termination: Termination::ScaleCollapsed { iterations: 0 }
+            }
+        );
         // Exactly half zero with n even: still no positive root.
         let s = m_scale(&[0.0, 0.0, 1.0, 2.0], MSCALE_C, MSCALE_B, None, 100, 1e-12);
         assert_eq!(s.value, 0.0);
         // Fewer than half zero: a positive scale.
-        let s = m_scale(&[0.0, 0.0, 1.0, 2.0, 3.0], MSCALE_C, MSCALE_B, None, 1000, 1e-12);
+        let s = m_scale(
+            &[0.0, 0.0, 1.0, 2.0, 3.0],
+            MSCALE_C,
+            MSCALE_B,
+            None,
+            1000,
+            1e-12,
+        );
         assert!(s.value > 0.0);
     }
 }

@@ -5,11 +5,14 @@
 //! our own unbiased bounded integers, so the same inputs give bit-identical outputs on every platform.
 //! Everything runs on one thread in a fixed order.
 
+// `!(a > b)` is used on purpose: it is true when a is NaN, so an unusable value takes the safe branch.
+#![allow(clippy::neg_cmp_op_on_partial_ord)]
+
 use rand_chacha::ChaCha8Rng;
 use rand_core::{RngCore, SeedableRng};
 
 use super::loss::{Bisquare, Loss};
-use super::scale::{mad_about_zero, m_scale, mean_rho, MSCALE_B, MSCALE_C};
+use super::scale::{m_scale, mad_about_zero, mean_rho, MSCALE_B, MSCALE_C};
 use super::{check_data, exact_fit_threshold, RobustError};
 use crate::linalg::{normal_solve, qr_solve, residuals};
 use crate::termination::Termination;
@@ -116,7 +119,13 @@ struct Candidate {
 ///
 /// A scale at or below 1e-12·max|y| (an exact fit of at least half the rows) ends the search with
 /// `ScaleCollapsed` and scale 0.
-pub fn s_estimate(x: &[f64], n: usize, p: usize, y: &[f64], opts: &SOptions) -> Result<SEstimate, RobustError> {
+pub fn s_estimate(
+    x: &[f64],
+    n: usize,
+    p: usize,
+    y: &[f64],
+    opts: &SOptions,
+) -> Result<SEstimate, RobustError> {
     check_data(x, n, p, y)?;
     let tiny = exact_fit_threshold(y);
     if p == 0 {
@@ -280,10 +289,17 @@ fn iterate_to_convergence(
     let mut r_new = vec![0.0; n];
     let mut w = vec![0.0; n];
     residuals(x, n, p, y, &coef, &mut r);
-    let start = if cand.scale > tiny { Some(cand.scale) } else { None };
+    let start = if cand.scale > tiny {
+        Some(cand.scale)
+    } else {
+        None
+    };
     let mut s = m_scale(&r, MSCALE_C, MSCALE_B, start, MSCALE_MAX_ITER, MSCALE_TOL).value;
     if !(s > tiny) {
-        return (Candidate { coef, scale: 0.0 }, Termination::ScaleCollapsed { iterations: 0 });
+        return (
+            Candidate { coef, scale: 0.0 },
+            Termination::ScaleCollapsed { iterations: 0 },
+        );
     }
     for it in 1..=opts.max_iter {
         for (wi, ri) in w.iter_mut().zip(r.iter()) {
@@ -291,12 +307,31 @@ fn iterate_to_convergence(
         }
         let next = match normal_solve(x, n, p, y, &w) {
             Ok(c) => c,
-            Err(_) => return (Candidate { coef, scale: s }, Termination::IterationLimit { iterations: it - 1 }),
+            Err(_) => {
+                return (
+                    Candidate { coef, scale: s },
+                    Termination::IterationLimit { iterations: it - 1 },
+                )
+            }
         };
         residuals(x, n, p, y, &next, &mut r_new);
-        let s_new = m_scale(&r_new, MSCALE_C, MSCALE_B, Some(s), MSCALE_MAX_ITER, MSCALE_TOL).value;
+        let s_new = m_scale(
+            &r_new,
+            MSCALE_C,
+            MSCALE_B,
+            Some(s),
+            MSCALE_MAX_ITER,
+            MSCALE_TOL,
+        )
+        .value;
         if !(s_new > tiny) {
-            return (Candidate { coef: next, scale: 0.0 }, Termination::ScaleCollapsed { iterations: it });
+            return (
+                Candidate {
+                    coef: next,
+                    scale: 0.0,
+                },
+                Termination::ScaleCollapsed { iterations: it },
+            );
         }
         if s_new > s {
             // The step cannot raise the scale in exact arithmetic; rounding can, by an ulp, at the fixed
@@ -308,16 +343,27 @@ fn iterate_to_convergence(
             };
             return (Candidate { coef, scale: s }, term);
         }
-        let moved = r.iter().zip(r_new.iter()).fold(0.0f64, |a, (u, v)| a.max((u - v).abs()));
+        let moved = r
+            .iter()
+            .zip(r_new.iter())
+            .fold(0.0f64, |a, (u, v)| a.max((u - v).abs()));
         let ds = (s - s_new).abs() / s;
         coef = next;
         std::mem::swap(&mut r, &mut r_new);
         s = s_new;
         if ds < opts.tol && moved <= opts.tol * s {
-            return (Candidate { coef, scale: s }, Termination::Converged { iterations: it });
+            return (
+                Candidate { coef, scale: s },
+                Termination::Converged { iterations: it },
+            );
         }
     }
-    (Candidate { coef, scale: s }, Termination::IterationLimit { iterations: opts.max_iter })
+    (
+        Candidate { coef, scale: s },
+        Termination::IterationLimit {
+            iterations: opts.max_iter,
+        },
+    )
 }
 
 #[cfg(test)]
@@ -338,11 +384,23 @@ mod tests {
     #[test]
     fn location_only() {
         // p = 1 intercept: the S-estimate of location ignores the gross outliers.
-        let mut y: Vec<f64> = (0..40).map(|i| ((i * 37 % 40) as f64 - 19.5) * 0.05).collect();
+        let mut y: Vec<f64> = (0..40)
+            .map(|i| ((i * 37 % 40) as f64 - 19.5) * 0.05)
+            .collect();
         y[0] = 100.0;
         y[1] = 120.0;
         let x = vec![1.0; 40];
-        let s = s_estimate(&x, 40, 1, &y, &SOptions { subsamples: 40, ..SOptions::default() }).unwrap();
+        let s = s_estimate(
+            &x,
+            40,
+            1,
+            &y,
+            &SOptions {
+                subsamples: 40,
+                ..SOptions::default()
+            },
+        )
+        .unwrap();
         assert!(s.coef[0].abs() < 0.2, "{:?}", s);
         assert!(s.termination.is_ok());
     }
