@@ -418,6 +418,12 @@ mod tests {
             bisquare_tuning(0.85)
         );
         assert!((huber_efficiency(huber_tuning(0.9)) - 0.9).abs() < 1e-10);
+        // Cross-check against independent quadrature (scipy.integrate.quad + scipy.optimize.brentq on
+        // the defining integrals, run by hand when this was written): 1.3449975085, 4.6850649485,
+        // 3.4436897847.
+        assert!((huber_tuning(0.95) - 1.3449975085).abs() < 1e-8);
+        assert!((bisquare_tuning(0.95) - 4.6850649485).abs() < 1e-8);
+        assert!((bisquare_tuning(0.85) - 3.4436897847).abs() < 1e-8);
         // Clamped, never a panic.
         assert!(huber_tuning(0.1).is_finite() && bisquare_tuning(f64::NAN).is_finite());
         assert!(bisquare_tuning(1.5).is_finite());

@@ -171,6 +171,8 @@ mod tests {
         let c = bisquare_mscale_constant(0.5);
         assert!((c - 1.5476).abs() < 1e-4, "{c}");
         assert!((bisquare_expected_rho(c) - 0.5).abs() < 1e-12);
+        // scipy quadrature cross-check (by hand): 1.5476449809.
+        assert!((c - 1.5476449809).abs() < 1e-8);
     }
 
     #[test]
