@@ -123,6 +123,11 @@ pub fn fit_error(e: FitError, names: &[String], context: &str) -> Error {
         FitError::NonFinite => {
             Error::new("a non-finite number appeared in the fit").at(context).hint("check the data for extreme values")
         }
+        FitError::DegenerateCovariance => Error::new(
+            "the robust fit's covariance is undefined: almost every residual lies beyond the loss's tuning constant",
+        )
+        .at(context)
+        .hint("check the response for a gross recording problem, or use `loss: huber`"),
         FitError::NoSubsample { tried } => {
             Error::new(format!("no non-singular subsample found for the robust start after {tried} draws"))
                 .at(context)

@@ -24,6 +24,8 @@ pub enum FitError {
     NonFinite,
     /// No non-singular subsample could be drawn for the S-estimate.
     NoSubsample { tried: usize },
+    /// The robust covariance is undefined: mean ψ′ at the solution is about zero.
+    DegenerateCovariance,
 }
 
 impl From<LinalgError> for FitError {
@@ -42,6 +44,8 @@ impl From<RobustError> for FitError {
             RobustError::TooFewRows { rows, columns } => FitError::TooFewRows { rows, columns },
             RobustError::AllSubsamplesSingular { tried } => FitError::NoSubsample { tried },
             RobustError::NonFinite => FitError::NonFinite,
+            RobustError::RankDeficient { column, aliased_with } => FitError::RankDeficient { column, aliased_with },
+            RobustError::DegenerateCovariance { .. } => FitError::DegenerateCovariance,
         }
     }
 }
@@ -209,7 +213,7 @@ pub fn robust(
     let ls = linalg::qr_solve(&design.x, n, p, &design.y, None)?;
     let inv = ls.xtx_inverse();
     let cov = if est.scale > 0.0 {
-        sandwich::huber_sandwich(&design.x, n, p, &est.residuals, est.scale, loss.as_ref(), &inv)
+        sandwich::huber_sandwich(&design.x, n, p, &est.residuals, est.scale, loss.as_ref(), &inv)?
     } else {
         vec![0.0; p * p]
     };
