@@ -174,6 +174,24 @@ fn split_path(msg: &str) -> (Option<&str>, &str) {
     (None, msg)
 }
 
+/// The key named by a duplicate-key message.
+fn duplicate_key(msg: &str) -> Option<&str> {
+    if let Some(rest) = msg.strip_prefix("duplicate entry with key ") {
+        return Some(rest.trim_matches('"'));
+    }
+    msg.strip_prefix("duplicate field ").map(|r| r.trim_matches('`'))
+}
+
+/// 1-based line of the second line that starts (after indentation) with `key:`.
+fn second_occurrence(text: &str, key: &str) -> Option<usize> {
+    let pattern = format!("{key}:");
+    text.lines()
+        .enumerate()
+        .filter(|(_, l)| l.trim_start().trim_start_matches("- ").starts_with(&pattern))
+        .nth(1)
+        .map(|(i, _)| i + 1)
+}
+
 /// Map a serde_yaml error (from parsing the tree or from typed deserialization).
 pub(crate) fn map(ctx: &Ctx, err: &serde_yaml::Error) -> Error {
     let full = strip_marks(&err.to_string());
@@ -192,6 +210,16 @@ pub(crate) fn map(ctx: &Ctx, err: &serde_yaml::Error) -> Error {
         return Error::new("the spec is nested too deeply").at(at).hint("a study spec needs a few levels of nesting at most");
     }
     let (what, own_hint) = reword(msg);
+    if let Some(key) = duplicate_key(msg) {
+        // serde_yaml points at the start of the mapping; the second occurrence is more useful.
+        if let Some(line) = second_occurrence(ctx.text, key) {
+            let at = match path {
+                Some(p) => format!("{}, line {line}, key {p}", ctx.spec),
+                None => format!("{}, line {line}", ctx.spec),
+            };
+            return Error::new(what).at(at).hint("remove one of them");
+        }
+    }
     match path {
         Some(p) => {
             let at = match location {
