@@ -133,6 +133,35 @@ struct Ctx<'a> {
     display: &'a str,
 }
 
+/// 1-based source line of the record starting at byte `offset` of `body`.
+///
+/// The csv crate's own `Position::line` lags by one after CRLF line ends (it counts `\n` only and the
+/// record position is taken before the `\n` of the previous `\r\n` is consumed), so lines are counted
+/// here from byte offsets. `LineCounter` counts incrementally, so the whole file is scanned once.
+struct LineCounter<'a> {
+    body: &'a [u8],
+    offset: usize,
+    newlines: u64,
+}
+
+impl LineCounter<'_> {
+    fn line_at(&mut self, offset: u64) -> u64 {
+        let mut start = usize::try_from(offset).unwrap_or(self.body.len()).min(self.body.len());
+        // Terminator bytes left over from the previous record or blank lines belong before the record.
+        while start < self.body.len() && (self.body[start] == b'\n' || self.body[start] == b'\r') {
+            start += 1;
+        }
+        if start < self.offset {
+            // Positions only move forward; count afresh if not (never expected).
+            self.offset = 0;
+            self.newlines = 0;
+        }
+        self.newlines += self.body[self.offset..start].iter().filter(|b| **b == b'\n').count() as u64;
+        self.offset = start;
+        self.newlines + 1
+    }
+}
+
 impl Ctx<'_> {
     fn cell(&self, line: u64, column: &str) -> String {
         format!("{}, line {line}, column {}", self.display, quote(column))
@@ -155,7 +184,11 @@ enum Kind {
 /// and categorical levels are the trimmed text.
 pub fn load(req: &FrameRequest) -> Result<Frame> {
     let ctx = Ctx { display: &req.display };
-    let meta = std::fs::metadata(&req.path).map_err(|e| Error::io("read the data", &req.path, &e).at(&req.display))?;
+    let meta = std::fs::metadata(&req.path).map_err(|e| {
+        Error::io("read the data", &req.path, &e)
+            .at(&req.display)
+            .hint("`data.file` is relative to the spec's folder; check the path and the spelling")
+    })?;
     if meta.is_dir() {
         return Err(Error::new("cannot read the data: it is a directory")
             .at(&req.display)
@@ -171,7 +204,7 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
     }
 
     let mut reader = csv::ReaderBuilder::new().has_headers(true).flexible(false).from_reader(body);
-    let header_record = reader.byte_headers().map_err(|e| csv_error(&ctx, &e))?.clone();
+    let header_record = reader.byte_headers().map_err(|e| csv_error(&ctx, &e, &mut LineCounter { body, offset: 0, newlines: 0 }))?.clone();
     let mut header = Vec::with_capacity(header_record.len());
     for (j, h) in header_record.iter().enumerate() {
         match std::str::from_utf8(h) {
@@ -202,10 +235,10 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
             if header.len() > MAX_LISTED_COLUMNS {
                 listed.push(format!("and {} more", header.len() - MAX_LISTED_COLUMNS));
             }
-            let columns = format!("the columns are {}", listed.join(", "));
+            let columns = format!("The columns are {}", listed.join(", "));
             let hint = match nearest(name, header.iter().map(String::as_str)) {
                 Some(s) => format!("did you mean {}? {columns}", quote(s)),
-                None => columns,
+                None => columns.replacen("The", "the", 1),
             };
             Error::new(format!("there is no column {}", quote(name))).at(format!("{}, line 1", req.display)).hint(hint)
         })
@@ -241,14 +274,15 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
     let mut row_cat = vec![0u32; req.categorical.len()];
     let mut row_missing: Vec<usize> = Vec::new();
     let mut record = csv::ByteRecord::new();
+    let mut counter = LineCounter { body, offset: 0, newlines: 0 };
     loop {
         match reader.read_byte_record(&mut record) {
             Ok(true) => {}
             Ok(false) => break,
-            Err(e) => return Err(csv_error(&ctx, &e)),
+            Err(e) => return Err(csv_error(&ctx, &e, &mut counter)),
         }
         n_read += 1;
-        let line = record.position().map_or(0, |p| p.line());
+        let line = record.position().map_or(0, |p| counter.line_at(p.byte()));
         row_missing.clear();
         for (w, (name, idx, kind)) in wanted.iter().enumerate() {
             let cell = trim(record.get(*idx).unwrap_or_default());
@@ -374,10 +408,10 @@ fn categorical_column(
     let reference = match reference {
         None => 0,
         Some(r) => levels.iter().position(|l| l == r).ok_or_else(|| {
-            let choices = format!("the levels are {}", listed());
+            let choices = format!("The levels are {}", listed());
             let hint = match nearest(r, levels.iter().map(String::as_str)) {
                 Some(s) => format!("did you mean {}? {choices}", quote(s)),
-                None => choices,
+                None => choices.replacen("The", "the", 1),
             };
             Error::new(format!("the reference level {} does not occur in column {}", quote(r), quote(name)))
                 .at(ctx.display)
@@ -435,14 +469,15 @@ fn parse_number(ctx: &Ctx, line: u64, column: &str, cell: &[u8]) -> Result<f64> 
     }
 }
 
-fn csv_error(ctx: &Ctx, e: &csv::Error) -> Error {
+fn csv_error(ctx: &Ctx, e: &csv::Error, counter: &mut LineCounter) -> Error {
     match e.kind() {
         csv::ErrorKind::UnequalLengths { pos, expected_len, len } => {
             let at = match pos {
-                Some(p) => format!("{}, line {}", ctx.display, p.line()),
+                Some(p) => format!("{}, line {}", ctx.display, counter.line_at(p.byte())),
                 None => ctx.display.to_string(),
             };
-            Error::new(format!("this row has {len} fields but the header has {expected_len}"))
+            let fields = if *len == 1 { "field" } else { "fields" };
+            Error::new(format!("this row has {len} {fields} but the header has {expected_len}"))
                 .at(at)
                 .hint("every row needs one value per column; quote values that contain commas")
         }
