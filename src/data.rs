@@ -31,7 +31,12 @@ pub struct FrameRequest {
 pub enum ColumnData {
     Numeric(Vec<f64>),
     /// Levels sorted (byte order); `codes[i]` indexes `levels`; `reference` indexes `levels`.
-    Categorical { levels: Vec<String>, codes: Vec<u32>, reference: usize, counts: Vec<usize> },
+    Categorical {
+        levels: Vec<String>,
+        codes: Vec<u32>,
+        reference: usize,
+        counts: Vec<usize>,
+    },
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -114,8 +119,14 @@ fn quote(s: &str) -> String {
 
 /// Trim spaces and tabs at both ends of a cell (the FrameRequest contract).
 fn trim(b: &[u8]) -> &[u8] {
-    let start = b.iter().position(|c| *c != b' ' && *c != b'\t').unwrap_or(b.len());
-    let end = b.iter().rposition(|c| *c != b' ' && *c != b'\t').map_or(start, |i| i + 1);
+    let start = b
+        .iter()
+        .position(|c| *c != b' ' && *c != b'\t')
+        .unwrap_or(b.len());
+    let end = b
+        .iter()
+        .rposition(|c| *c != b' ' && *c != b'\t')
+        .map_or(start, |i| i + 1);
     &b[start..end]
 }
 
@@ -146,7 +157,9 @@ struct LineCounter<'a> {
 
 impl LineCounter<'_> {
     fn line_at(&mut self, offset: u64) -> u64 {
-        let mut start = usize::try_from(offset).unwrap_or(self.body.len()).min(self.body.len());
+        let mut start = usize::try_from(offset)
+            .unwrap_or(self.body.len())
+            .min(self.body.len());
         // Terminator bytes left over from the previous record or blank lines belong before the record.
         while start < self.body.len() && (self.body[start] == b'\n' || self.body[start] == b'\r') {
             start += 1;
@@ -156,7 +169,10 @@ impl LineCounter<'_> {
             self.offset = 0;
             self.newlines = 0;
         }
-        self.newlines += self.body[self.offset..start].iter().filter(|b| **b == b'\n').count() as u64;
+        self.newlines += self.body[self.offset..start]
+            .iter()
+            .filter(|b| **b == b'\n')
+            .count() as u64;
         self.offset = start;
         self.newlines + 1
     }
@@ -183,7 +199,9 @@ enum Kind {
 /// Cells are trimmed of surrounding spaces and tabs before the missing-token test and before parsing,
 /// and categorical levels are the trimmed text.
 pub fn load(req: &FrameRequest) -> Result<Frame> {
-    let ctx = Ctx { display: &req.display };
+    let ctx = Ctx {
+        display: &req.display,
+    };
     let meta = std::fs::metadata(&req.path).map_err(|e| {
         Error::io("read the data", &req.path, &e)
             .at(&req.display)
@@ -194,25 +212,49 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
             .at(&req.display)
             .hint("`data.file` must name a CSV file"));
     }
-    let bytes = std::fs::read(&req.path).map_err(|e| Error::io("read the data", &req.path, &e).at(&req.display))?;
+    let bytes = std::fs::read(&req.path)
+        .map_err(|e| Error::io("read the data", &req.path, &e).at(&req.display))?;
     let sha256 = hex(&Sha256::digest(&bytes));
-    let body = bytes.strip_prefix(b"\xEF\xBB\xBF".as_slice()).unwrap_or(&bytes);
+    let body = bytes
+        .strip_prefix(b"\xEF\xBB\xBF".as_slice())
+        .unwrap_or(&bytes);
     if body.iter().all(|b| b.is_ascii_whitespace()) {
-        return Err(Error::new("the file is empty; a header row naming the columns is needed")
-            .at(&req.display)
-            .hint("the first line of the CSV names the columns, e.g. `price,age,district`"));
+        return Err(
+            Error::new("the file is empty; a header row naming the columns is needed")
+                .at(&req.display)
+                .hint("the first line of the CSV names the columns, e.g. `price,age,district`"),
+        );
     }
 
-    let mut reader = csv::ReaderBuilder::new().has_headers(true).flexible(false).from_reader(body);
-    let header_record = reader.byte_headers().map_err(|e| csv_error(&ctx, &e, &mut LineCounter { body, offset: 0, newlines: 0 }))?.clone();
+    let mut reader = csv::ReaderBuilder::new()
+        .has_headers(true)
+        .flexible(false)
+        .from_reader(body);
+    let header_record = reader
+        .byte_headers()
+        .map_err(|e| {
+            csv_error(
+                &ctx,
+                &e,
+                &mut LineCounter {
+                    body,
+                    offset: 0,
+                    newlines: 0,
+                },
+            )
+        })?
+        .clone();
     let mut header = Vec::with_capacity(header_record.len());
     for (j, h) in header_record.iter().enumerate() {
         match std::str::from_utf8(h) {
             Ok(s) => header.push(s.to_string()),
             Err(_) => {
-                return Err(Error::new(format!("the name of column {} is not valid UTF-8 text", j + 1))
-                    .at(format!("{}, line 1", req.display))
-                    .hint("save the file as UTF-8"));
+                return Err(Error::new(format!(
+                    "the name of column {} is not valid UTF-8 text",
+                    j + 1
+                ))
+                .at(format!("{}, line 1", req.display))
+                .hint("save the file as UTF-8"));
             }
         }
     }
@@ -231,7 +273,11 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
 
     let find = |name: &str| -> Result<usize> {
         header.iter().position(|h| h == name).ok_or_else(|| {
-            let mut listed: Vec<String> = header.iter().take(MAX_LISTED_COLUMNS).map(|h| quote(h)).collect();
+            let mut listed: Vec<String> = header
+                .iter()
+                .take(MAX_LISTED_COLUMNS)
+                .map(|h| quote(h))
+                .collect();
             if header.len() > MAX_LISTED_COLUMNS {
                 listed.push(format!("and {} more", header.len() - MAX_LISTED_COLUMNS));
             }
@@ -240,7 +286,9 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
                 Some(s) => format!("did you mean {}? {columns}", quote(s)),
                 None => columns.replacen("The", "the", 1),
             };
-            Error::new(format!("there is no column {}", quote(name))).at(format!("{}, line 1", req.display)).hint(hint)
+            Error::new(format!("there is no column {}", quote(name)))
+                .at(format!("{}, line 1", req.display))
+                .hint(hint)
         })
     };
     // Requested columns: (name, index in the record, kind).
@@ -274,7 +322,11 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
     let mut row_cat = vec![0u32; req.categorical.len()];
     let mut row_missing: Vec<usize> = Vec::new();
     let mut record = csv::ByteRecord::new();
-    let mut counter = LineCounter { body, offset: 0, newlines: 0 };
+    let mut counter = LineCounter {
+        body,
+        offset: 0,
+        newlines: 0,
+    };
     loop {
         match reader.read_byte_record(&mut record) {
             Ok(true) => {}
@@ -311,7 +363,13 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
             for &w in &row_missing {
                 missing_counts[w] += 1;
             }
-            dropped.push(DroppedRow { line, columns: row_missing.iter().map(|&w| wanted[w].0.to_string()).collect() });
+            dropped.push(DroppedRow {
+                line,
+                columns: row_missing
+                    .iter()
+                    .map(|&w| wanted[w].0.to_string())
+                    .collect(),
+            });
             continue;
         }
         for (i, v) in row_num.iter().enumerate() {
@@ -343,15 +401,20 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
         .collect();
 
     if n_read == 0 {
-        return Err(Error::new("no data rows; the file has a header but nothing below it")
-            .at(&req.display)
-            .hint("add the data rows below the header line"));
+        return Err(
+            Error::new("no data rows; the file has a header but nothing below it")
+                .at(&req.display)
+                .hint("add the data rows below the header line"),
+        );
     }
     if lines.is_empty() {
         let mut worst = missing_per_column.clone();
-        worst.sort_by(|a, b| b.1.cmp(&a.1));
-        let listed: Vec<String> =
-            worst.iter().take(5).map(|(c, n)| format!("{} ({n} of {n_read} rows)", quote(c))).collect();
+        worst.sort_by_key(|w| std::cmp::Reverse(w.1));
+        let listed: Vec<String> = worst
+            .iter()
+            .take(5)
+            .map(|(c, n)| format!("{} ({n} of {n_read} rows)", quote(c)))
+            .collect();
         return Err(Error::new(format!(
             "every row has a missing value in a used column; the most often missing: {}",
             listed.join(", ")
@@ -363,13 +426,33 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
     let mut warnings = Vec::new();
     let mut columns: Vec<Column> = Vec::with_capacity(wanted.len());
     for (name, v) in req.numeric.iter().zip(numeric) {
-        columns.push(Column { name: name.clone(), data: ColumnData::Numeric(v) });
+        columns.push(Column {
+            name: name.clone(),
+            data: ColumnData::Numeric(v),
+        });
     }
     for (i, (name, reference)) in req.categorical.iter().enumerate() {
-        columns.push(categorical_column(&ctx, name, reference.as_deref(), &level_texts[i], &codes[i], &mut warnings)?);
+        columns.push(categorical_column(
+            &ctx,
+            name,
+            reference.as_deref(),
+            &level_texts[i],
+            &codes[i],
+            &mut warnings,
+        )?);
     }
 
-    Ok(Frame { n_read, columns, lines, ids, dropped, missing_per_column, warnings, sha256, header })
+    Ok(Frame {
+        n_read,
+        columns,
+        lines,
+        ids,
+        dropped,
+        missing_per_column,
+        warnings,
+        sha256,
+        header,
+    })
 }
 
 /// Sort levels (byte order), remap codes, count, find the reference, and refuse a single level.
@@ -386,7 +469,9 @@ fn categorical_column(
     for &c in provisional {
         seen_counts[c as usize] += 1;
     }
-    let mut order: Vec<usize> = (0..first_seen.len()).filter(|&i| seen_counts[i] > 0).collect();
+    let mut order: Vec<usize> = (0..first_seen.len())
+        .filter(|&i| seen_counts[i] > 0)
+        .collect();
     order.sort_by(|&a, &b| first_seen[a].as_bytes().cmp(first_seen[b].as_bytes()));
     let mut remap = vec![0u32; first_seen.len()];
     for (new, &old) in order.iter().enumerate() {
@@ -395,7 +480,13 @@ fn categorical_column(
     let levels: Vec<String> = order.iter().map(|&i| first_seen[i].clone()).collect();
     let counts: Vec<usize> = order.iter().map(|&i| seen_counts[i]).collect();
     let codes: Vec<u32> = provisional.iter().map(|&c| remap[c as usize]).collect();
-    let listed = || levels.iter().map(|l| quote(l)).collect::<Vec<_>>().join(", ");
+    let listed = || {
+        levels
+            .iter()
+            .map(|l| quote(l))
+            .collect::<Vec<_>>()
+            .join(", ")
+    };
     if levels.len() < 2 {
         return Err(Error::new(format!(
             "the categorical column {} has only one level ({}) among the used rows; a categorical term needs at least two",
@@ -413,9 +504,13 @@ fn categorical_column(
                 Some(s) => format!("did you mean {}? {choices}", quote(s)),
                 None => choices.replacen("The", "the", 1),
             };
-            Error::new(format!("the reference level {} does not occur in column {}", quote(r), quote(name)))
-                .at(ctx.display)
-                .hint(hint)
+            Error::new(format!(
+                "the reference level {} does not occur in column {}",
+                quote(r),
+                quote(name)
+            ))
+            .at(ctx.display)
+            .hint(hint)
         })?,
     };
     for (l, n) in levels.iter().zip(&counts) {
@@ -428,14 +523,25 @@ fn categorical_column(
             ));
         }
     }
-    Ok(Column { name: name.to_string(), data: ColumnData::Categorical { levels, codes, reference, counts } })
+    Ok(Column {
+        name: name.to_string(),
+        data: ColumnData::Categorical {
+            levels,
+            codes,
+            reference,
+            counts,
+        },
+    })
 }
 
 fn utf8<'a>(ctx: &Ctx, line: u64, column: &str, cell: &'a [u8]) -> Result<&'a str> {
     std::str::from_utf8(cell).map_err(|e| {
-        Error::new(format!("the value is not valid UTF-8 text (bad byte at position {})", e.valid_up_to() + 1))
-            .at(ctx.cell(line, column))
-            .hint("save the file as UTF-8")
+        Error::new(format!(
+            "the value is not valid UTF-8 text (bad byte at position {})",
+            e.valid_up_to() + 1
+        ))
+        .at(ctx.cell(line, column))
+        .hint("save the file as UTF-8")
     })
 }
 
@@ -444,7 +550,9 @@ fn utf8<'a>(ctx: &Ctx, line: u64, column: &str, cell: &'a [u8]) -> Result<&'a st
 fn parse_number(ctx: &Ctx, line: u64, column: &str, cell: &[u8]) -> Result<f64> {
     let text = utf8(ctx, line, column, cell)?;
     let bad = |hint: &str| {
-        Error::new(format!("cannot read {} as a number", quote(text))).at(ctx.cell(line, column)).hint(hint)
+        Error::new(format!("cannot read {} as a number", quote(text)))
+            .at(ctx.cell(line, column))
+            .hint(hint)
     };
     match text.parse::<f64>() {
         Ok(v) if v.is_finite() => Ok(v),
@@ -471,18 +579,27 @@ fn parse_number(ctx: &Ctx, line: u64, column: &str, cell: &[u8]) -> Result<f64> 
 
 fn csv_error(ctx: &Ctx, e: &csv::Error, counter: &mut LineCounter) -> Error {
     match e.kind() {
-        csv::ErrorKind::UnequalLengths { pos, expected_len, len } => {
+        csv::ErrorKind::UnequalLengths {
+            pos,
+            expected_len,
+            len,
+        } => {
             let at = match pos {
                 Some(p) => format!("{}, line {}", ctx.display, counter.line_at(p.byte())),
                 None => ctx.display.to_string(),
             };
             let fields = if *len == 1 { "field" } else { "fields" };
-            Error::new(format!("this row has {len} {fields} but the header has {expected_len}"))
-                .at(at)
-                .hint("every row needs one value per column; quote values that contain commas")
+            Error::new(format!(
+                "this row has {len} {fields} but the header has {expected_len}"
+            ))
+            .at(at)
+            .hint("every row needs one value per column; quote values that contain commas")
         }
-        csv::ErrorKind::Io(io) => Error::new(format!("cannot read the data: {}", crate::error::describe_io(io)))
-            .at(ctx.display),
+        csv::ErrorKind::Io(io) => Error::new(format!(
+            "cannot read the data: {}",
+            crate::error::describe_io(io)
+        ))
+        .at(ctx.display),
         _ => Error::new(format!("cannot read the data as CSV: {e}")).at(ctx.display),
     }
 }

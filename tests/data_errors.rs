@@ -34,16 +34,29 @@ fn request(path: PathBuf, numeric: &[&str], categorical: &[(&str, Option<&str>)]
         missing: vec![String::new(), "NA".into()],
         id: None,
         numeric: numeric.iter().map(|s| s.to_string()).collect(),
-        categorical: categorical.iter().map(|(c, r)| (c.to_string(), r.map(str::to_string))).collect(),
+        categorical: categorical
+            .iter()
+            .map(|(c, r)| (c.to_string(), r.map(str::to_string)))
+            .collect(),
     }
 }
 
-fn load_ok(name: &str, bytes: &[u8], numeric: &[&str], categorical: &[(&str, Option<&str>)]) -> Frame {
+fn load_ok(
+    name: &str,
+    bytes: &[u8],
+    numeric: &[&str],
+    categorical: &[(&str, Option<&str>)],
+) -> Frame {
     let t = Temp::new(name);
     data::load(&request(t.file(bytes), numeric, categorical)).unwrap()
 }
 
-fn load_err(name: &str, bytes: &[u8], numeric: &[&str], categorical: &[(&str, Option<&str>)]) -> String {
+fn load_err(
+    name: &str,
+    bytes: &[u8],
+    numeric: &[&str],
+    categorical: &[(&str, Option<&str>)],
+) -> String {
     let t = Temp::new(name);
     match data::load(&request(t.file(bytes), numeric, categorical)) {
         Ok(f) => panic!("expected an error, got {f:?}"),
@@ -51,7 +64,8 @@ fn load_err(name: &str, bytes: &[u8], numeric: &[&str], categorical: &[(&str, Op
     }
 }
 
-const NUMBER_HINT: &str = "write numbers with a dot as the decimal separator and no thousands separators; \
+const NUMBER_HINT: &str =
+    "write numbers with a dot as the decimal separator and no thousands separators; \
                            if this marks a missing value, add it to `data.missing`";
 
 #[test]
@@ -104,14 +118,20 @@ fn bom_crlf_and_digest() {
     assert_eq!(f.n_read, 2);
     // sha256 of the raw bytes (BOM included), lower-case hex.
     assert_eq!(f.sha256.len(), 64);
-    assert!(f.sha256.bytes().all(|b| b.is_ascii_digit() || (b'a'..=b'f').contains(&b)));
+    assert!(f
+        .sha256
+        .bytes()
+        .all(|b| b.is_ascii_digit() || (b'a'..=b'f').contains(&b)));
 }
 
 #[test]
 fn sha256_of_known_bytes() {
     let f = load_ok("sha", b"y\n1\n", &["y"], &[]);
     // printf 'y\n1\n' | sha256sum
-    assert_eq!(f.sha256, "b6ff7597e8694a31e17b2205359da788d370f3ab4565258279fd5a2a51e7666b");
+    assert_eq!(
+        f.sha256,
+        "b6ff7597e8694a31e17b2205359da788d370f3ab4565258279fd5a2a51e7666b"
+    );
 }
 
 #[test]
@@ -127,12 +147,30 @@ fn ragged_row() {
 fn quoted_comma_and_newline_keep_line_numbers() {
     let bytes = b"y,label\n1,\"a, b\"\n2,\"two\nlines\"\n3,c\n4x,d\n";
     let f = load_err("quoted", bytes, &["y"], &[("label", None)]);
-    assert_eq!(f, format!("data.csv, line 6, column \"y\": cannot read \"4x\" as a number\n  hint: {NUMBER_HINT}"));
-    let f = load_ok("quoted-ok", b"y,label\n1,\"a, b\"\n2,\"two\nlines\"\n3,c\n", &["y"], &[("label", None)]);
+    assert_eq!(
+        f,
+        format!(
+            "data.csv, line 6, column \"y\": cannot read \"4x\" as a number\n  hint: {NUMBER_HINT}"
+        )
+    );
+    let f = load_ok(
+        "quoted-ok",
+        b"y,label\n1,\"a, b\"\n2,\"two\nlines\"\n3,c\n",
+        &["y"],
+        &[("label", None)],
+    );
     assert_eq!(f.lines, vec![2, 3, 5]);
     match &f.column("label").unwrap().data {
-        ColumnData::Categorical { levels, codes, reference, counts } => {
-            assert_eq!(levels, &vec!["a, b".to_string(), "c".into(), "two\nlines".into()]);
+        ColumnData::Categorical {
+            levels,
+            codes,
+            reference,
+            counts,
+        } => {
+            assert_eq!(
+                levels,
+                &vec!["a, b".to_string(), "c".into(), "two\nlines".into()]
+            );
             assert_eq!(codes, &vec![0, 2, 1]);
             assert_eq!(*reference, 0);
             assert_eq!(counts, &vec![1, 1, 1]);
@@ -181,7 +219,13 @@ fn nan_listed_as_missing_drops_the_row() {
     r.missing = vec!["NaN".into()];
     let f = data::load(&r).unwrap();
     assert_eq!(f.numeric("y"), Some(&[1.0, 2.0][..]));
-    assert_eq!(f.dropped, vec![DroppedRow { line: 3, columns: vec!["y".into()] }]);
+    assert_eq!(
+        f.dropped,
+        vec![DroppedRow {
+            line: 3,
+            columns: vec!["y".into()]
+        }]
+    );
 }
 
 #[test]
@@ -200,7 +244,12 @@ fn odd_column_name_is_reported_verbatim() {
         load_err("weird", bytes, &["a\"b<i>\nc"], &[]),
         format!("data.csv, line 4, column \"a\\\"b<i>\\nc\": cannot read \"7o\" as a number\n  hint: {NUMBER_HINT}")
     );
-    let f = load_ok("weird-ok", b"\"a\"\"b<i>\nc\",x\n1,2\n", &["a\"b<i>\nc"], &[]);
+    let f = load_ok(
+        "weird-ok",
+        b"\"a\"\"b<i>\nc\",x\n1,2\n",
+        &["a\"b<i>\nc"],
+        &[],
+    );
     assert_eq!(f.header[0], "a\"b<i>\nc");
     assert_eq!(f.lines, vec![3]);
 }
@@ -228,7 +277,11 @@ fn bad_number() {
 #[test]
 fn dropped_rows_are_listed() {
     let t = Temp::new("dropped");
-    let mut r = request(t.file(b"id,y,x,d\nP1,1,NA,a\nP2,2,5,b\n,3,6,a\nP4,,,\nP5, 4 , 7 ,b\n"), &["y", "x"], &[("d", None)]);
+    let mut r = request(
+        t.file(b"id,y,x,d\nP1,1,NA,a\nP2,2,5,b\n,3,6,a\nP4,,,\nP5, 4 , 7 ,b\n"),
+        &["y", "x"],
+        &[("d", None)],
+    );
     r.id = Some("id".into());
     let f = data::load(&r).unwrap();
     assert_eq!(f.n_read, 5);
@@ -238,11 +291,20 @@ fn dropped_rows_are_listed() {
     assert_eq!(
         f.dropped,
         vec![
-            DroppedRow { line: 2, columns: vec!["x".into()] },
-            DroppedRow { line: 5, columns: vec!["y".into(), "x".into(), "d".into()] },
+            DroppedRow {
+                line: 2,
+                columns: vec!["x".into()]
+            },
+            DroppedRow {
+                line: 5,
+                columns: vec!["y".into(), "x".into(), "d".into()]
+            },
         ]
     );
-    assert_eq!(f.missing_per_column, vec![("y".into(), 1), ("x".into(), 2), ("d".into(), 1)]);
+    assert_eq!(
+        f.missing_per_column,
+        vec![("y".into(), 1), ("x".into(), 2), ("d".into(), 1)]
+    );
 }
 
 #[test]
@@ -257,7 +319,12 @@ fn all_rows_dropped() {
 #[test]
 fn unknown_reference_level() {
     assert_eq!(
-        load_err("ref", b"y,d\n1,a\n2,bb2\n3,a\n", &["y"], &[("d", Some("bb"))]),
+        load_err(
+            "ref",
+            b"y,d\n1,a\n2,bb2\n3,a\n",
+            &["y"],
+            &[("d", Some("bb"))]
+        ),
         "data.csv: the reference level \"bb\" does not occur in column \"d\"\n  \
          hint: did you mean \"bb2\"? The levels are \"a\", \"bb2\""
     );
@@ -265,9 +332,19 @@ fn unknown_reference_level() {
 
 #[test]
 fn reference_level_is_found() {
-    let f = load_ok("refok", b"y,d\n1,b\n2,a\n3,c\n4,a\n5,b\n6,c\n", &["y"], &[("d", Some("c"))]);
+    let f = load_ok(
+        "refok",
+        b"y,d\n1,b\n2,a\n3,c\n4,a\n5,b\n6,c\n",
+        &["y"],
+        &[("d", Some("c"))],
+    );
     match &f.column("d").unwrap().data {
-        ColumnData::Categorical { levels, codes, reference, counts } => {
+        ColumnData::Categorical {
+            levels,
+            codes,
+            reference,
+            counts,
+        } => {
             assert_eq!(levels, &vec!["a".to_string(), "b".into(), "c".into()]);
             assert_eq!(codes, &vec![1, 0, 2, 0, 1, 2]);
             assert_eq!(*reference, 2);

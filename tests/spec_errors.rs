@@ -65,7 +65,7 @@ fn unknown_nested_key_with_path() {
 #[test]
 fn missing_required_key() {
     assert_eq!(
-        err(&"title: x\n".to_string()),
+        err("title: x\n"),
         "study.yaml: missing required key `knotwise`\n  hint: start the spec with `knotwise: 1` (the spec format version)"
     );
 }
@@ -73,7 +73,7 @@ fn missing_required_key() {
 #[test]
 fn missing_data_file() {
     assert_eq!(
-        err(&"knotwise: 1\ntitle: x\ndata:\n  id: a\nresponse: y\n".to_string()),
+        err("knotwise: 1\ntitle: x\ndata:\n  id: a\nresponse: y\n"),
         "study.yaml, line 3, key data: missing required key `data.file`\n  hint: add `file: <path to the CSV>` under `data:`"
     );
 }
@@ -97,7 +97,7 @@ fn unsupported_version() {
 #[test]
 fn list_spec() {
     assert_eq!(
-        err(&"- a\n- b\n".to_string()),
+        err("- a\n- b\n"),
         "study.yaml: the spec must be a mapping of keys (`knotwise`, `title`, `data`, `response`, ...); it is a list\n  hint: start the spec with `knotwise: 1` and `title: ...` on their own lines, keys at the left margin"
     );
 }
@@ -105,7 +105,7 @@ fn list_spec() {
 #[test]
 fn scalar_spec() {
     assert_eq!(
-        err(&"hello\n".to_string()),
+        err("hello\n"),
         "study.yaml: the spec must be a mapping of keys (`knotwise`, `title`, `data`, `response`, ...); it is a single value\n  hint: start the spec with `knotwise: 1` and `title: ...` on their own lines, keys at the left margin"
     );
 }
@@ -113,7 +113,7 @@ fn scalar_spec() {
 #[test]
 fn tab_indentation() {
     assert_eq!(
-        err(&"knotwise: 1\ntitle: x\ndata:\n\tfile: a.csv\n".to_string()),
+        err("knotwise: 1\ntitle: x\ndata:\n\tfile: a.csv\n"),
         "study.yaml, line 4, column 1: this is not valid YAML: found character that cannot start any token, while scanning for the next token\n  hint: indent with spaces: YAML does not allow tabs for indentation"
     );
 }
@@ -121,7 +121,7 @@ fn tab_indentation() {
 #[test]
 fn duplicate_key() {
     assert_eq!(
-        err(&"knotwise: 1\ntitle: x\ntitle: y\n".to_string()),
+        err("knotwise: 1\ntitle: x\ntitle: y\n"),
         "study.yaml, line 3: the key `title` is given twice\n  hint: remove one of them"
     );
 }
@@ -295,7 +295,11 @@ fn alias_bomb_is_refused_quickly() {
     }
     let start = Instant::now();
     let e = err(&text);
-    assert!(start.elapsed() < Duration::from_secs(5), "took {:?}", start.elapsed());
+    assert!(
+        start.elapsed() < Duration::from_secs(5),
+        "took {:?}",
+        start.elapsed()
+    );
     assert_eq!(
         e,
         "study.yaml: the spec expands YAML aliases too many times (is it an alias bomb?)\n  \
@@ -319,7 +323,10 @@ fn oversized_spec_is_refused() {
 #[test]
 fn load_names_the_path_as_given() {
     let e = spec::load(Path::new("no/such/study.yaml")).unwrap_err();
-    assert_eq!(e.to_string(), "no/such/study.yaml: cannot read the spec: no such file or directory");
+    assert_eq!(
+        e.to_string(),
+        "no/such/study.yaml: cannot read the spec: no such file or directory"
+    );
 }
 
 const FULL: &str = r#"knotwise: 1
@@ -363,12 +370,19 @@ report:
 fn resolved_yaml_round_trips_and_fills_defaults() {
     let base = Path::new("specs");
     let s = spec::parse(FULL, "study.yaml", base).unwrap();
-    assert_eq!(s.data.sha256.as_deref(), Some("9f1c000000000000000000000000000000000000000000000000000000000abc"));
+    assert_eq!(
+        s.data.sha256.as_deref(),
+        Some("9f1c000000000000000000000000000000000000000000000000000000000abc")
+    );
     assert_eq!(s.data.file, base.join("../demo-data/assessment-sales.csv"));
     let text = s.to_resolved_yaml();
     let again = spec::parse(&text, "study.resolved.yaml", base).unwrap();
     assert_eq!(again, s);
-    assert_eq!(again.to_resolved_yaml(), text, "the resolved spec is a fixed point");
+    assert_eq!(
+        again.to_resolved_yaml(),
+        text,
+        "the resolved spec is a fixed point"
+    );
     assert!(text.contains("  subsamples: 500\n"));
     assert!(text.contains("  bic-penalty: 0.5\n"));
     assert!(text.contains("  refit-without-flagged: true\n"));
@@ -380,7 +394,10 @@ fn resolved_yaml_round_trips_and_fills_defaults() {
          robust:\n  loss: bisquare\n  efficiency: 0.95\n  start: s-estimate\n  subsamples: 500\noutliers:\n  cutoff: 2.5\n\
          sensitivity:\n  refit-without-flagged: true\n  influence: true\nreport: {}\n"
     );
-    assert_eq!(spec::parse(&minimal.to_resolved_yaml(), "r.yaml", base).unwrap(), minimal);
+    assert_eq!(
+        spec::parse(&minimal.to_resolved_yaml(), "r.yaml", base).unwrap(),
+        minimal
+    );
 }
 
 #[test]
@@ -392,7 +409,15 @@ fn notes_file_is_read_relative_to_the_spec() {
     assert_eq!(s.report.notes_as_written.as_deref(), Some("notes.md"));
     assert_eq!(s.report.notes_markdown.as_deref(), Some("# Notes\nhello\n"));
     assert_eq!(s.data.file, dir.join("sales.csv"));
-    let inline = spec::parse(&with("report:\n  notes: Just a sentence.\n"), "s.yaml", &dir).unwrap();
-    assert_eq!(inline.report.notes_markdown.as_deref(), Some("Just a sentence."));
+    let inline = spec::parse(
+        &with("report:\n  notes: Just a sentence.\n"),
+        "s.yaml",
+        &dir,
+    )
+    .unwrap();
+    assert_eq!(
+        inline.report.notes_markdown.as_deref(),
+        Some("Just a sentence.")
+    );
     let _ = std::fs::remove_dir_all(&dir);
 }

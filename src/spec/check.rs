@@ -29,7 +29,11 @@ fn num(x: f64) -> String {
 
 fn check_grid(ctx: &Ctx, path: &str, grid: &[usize], degree: Option<(usize, &str)>) -> Result<()> {
     if grid.is_empty() {
-        return Err(ctx.err(path, "the grid of basis sizes is empty", "list at least one size, e.g. `[4, 5, 6]`"));
+        return Err(ctx.err(
+            path,
+            "the grid of basis sizes is empty",
+            "list at least one size, e.g. `[4, 5, 6]`",
+        ));
     }
     for (i, &k) in grid.iter().enumerate() {
         if k > MAX_BASIS_SIZE {
@@ -50,12 +54,18 @@ fn check_grid(ctx: &Ctx, path: &str, grid: &[usize], degree: Option<(usize, &str
         } else if k < 2 {
             return Err(ctx.err(
                 path,
-                format!("basis size {k} is too small; a smooth term needs at least 2 basis functions"),
+                format!(
+                    "basis size {k} is too small; a smooth term needs at least 2 basis functions"
+                ),
                 "use sizes such as `[4, 5, 6, 7, 8]`",
             ));
         }
         if grid[..i].contains(&k) {
-            return Err(ctx.err(path, format!("basis size {k} is listed twice"), "list each size once"));
+            return Err(ctx.err(
+                path,
+                format!("basis size {k} is listed twice"),
+                "list each size once",
+            ));
         }
     }
     Ok(())
@@ -66,7 +76,9 @@ fn check_date(ctx: &Ctx, date: &str) -> Result<()> {
     let shape_ok = b.len() == 10
         && b[4] == b'-'
         && b[7] == b'-'
-        && b.iter().enumerate().all(|(i, c)| i == 4 || i == 7 || c.is_ascii_digit());
+        && b.iter()
+            .enumerate()
+            .all(|(i, c)| i == 4 || i == 7 || c.is_ascii_digit());
     let valid = shape_ok && {
         let year: u32 = date[0..4].parse().unwrap_or(0);
         let month: u32 = date[5..7].parse().unwrap_or(0);
@@ -104,7 +116,9 @@ pub(crate) fn quote(s: &str) -> String {
             '\r' => out.push_str("\\r"),
             '\t' => out.push_str("\\t"),
             // YAML's escapes, so the same text serves messages and the resolved spec.
-            c if c.is_control() && (c as u32) < 0x100 => out.push_str(&format!("\\x{:02x}", c as u32)),
+            c if c.is_control() && (c as u32) < 0x100 => {
+                out.push_str(&format!("\\x{:02x}", c as u32))
+            }
             c if c.is_control() => out.push_str(&format!("\\u{:04x}", c as u32)),
             c => out.push(c),
         }
@@ -123,7 +137,11 @@ fn nonempty(ctx: &Ctx, path: &str, value: String, what: &str) -> Result<String> 
 pub(crate) fn from_raw(ctx: &Ctx, raw: RawStudy, base_dir: &Path) -> Result<Study> {
     match raw.knotwise {
         None => {
-            return Err(missing_key(ctx, "knotwise", "start the spec with `knotwise: 1` (the spec format version)"));
+            return Err(missing_key(
+                ctx,
+                "knotwise",
+                "start the spec with `knotwise: 1` (the spec format version)",
+            ));
         }
         Some(v) if v != u64::from(SPEC_VERSION) => {
             return Err(ctx.err(
@@ -135,13 +153,17 @@ pub(crate) fn from_raw(ctx: &Ctx, raw: RawStudy, base_dir: &Path) -> Result<Stud
         Some(_) => {}
     }
 
-    let title = raw.title.ok_or_else(|| missing_key(ctx, "title", "add `title: <what the study is about>`"))?;
+    let title = raw
+        .title
+        .ok_or_else(|| missing_key(ctx, "title", "add `title: <what the study is about>`"))?;
     let title = nonempty(ctx, "title", title, "a short description of the study")?;
     let title_chars = title.chars().count();
     if title_chars > MAX_TITLE_CHARS {
         return Err(ctx.err(
             "title",
-            format!("the title is {title_chars} characters long; at most {MAX_TITLE_CHARS} are allowed"),
+            format!(
+                "the title is {title_chars} characters long; at most {MAX_TITLE_CHARS} are allowed"
+            ),
             "shorten the title and put the details in `report.notes`",
         ));
     }
@@ -151,11 +173,26 @@ pub(crate) fn from_raw(ctx: &Ctx, raw: RawStudy, base_dir: &Path) -> Result<Stud
     }
     let seed = raw.seed.unwrap_or(1);
 
-    let rd = raw.data.ok_or_else(|| missing_key(ctx, "data", "add `data:` with `file: <path to the CSV>` below it"))?;
-    let file_as_written = rd
-        .file
-        .ok_or_else(|| missing_key(ctx, "data.file", "add `file: <path to the CSV>` under `data:`"))?;
-    let file_as_written = nonempty(ctx, "data.file", file_as_written, "the path of the CSV file")?;
+    let rd = raw.data.ok_or_else(|| {
+        missing_key(
+            ctx,
+            "data",
+            "add `data:` with `file: <path to the CSV>` below it",
+        )
+    })?;
+    let file_as_written = rd.file.ok_or_else(|| {
+        missing_key(
+            ctx,
+            "data.file",
+            "add `file: <path to the CSV>` under `data:`",
+        )
+    })?;
+    let file_as_written = nonempty(
+        ctx,
+        "data.file",
+        file_as_written,
+        "the path of the CSV file",
+    )?;
     let sha256 = match rd.sha256 {
         None => None,
         Some(s) => {
@@ -175,10 +212,23 @@ pub(crate) fn from_raw(ctx: &Ctx, raw: RawStudy, base_dir: &Path) -> Result<Stud
         }
     };
     let missing = rd.missing.unwrap_or_else(|| vec![String::new()]);
-    let data = DataSource { file: base_dir.join(&file_as_written), file_as_written, sha256, missing, id: rd.id };
+    let data = DataSource {
+        file: base_dir.join(&file_as_written),
+        file_as_written,
+        sha256,
+        missing,
+        id: rd.id,
+    };
 
-    let response = raw.response.ok_or_else(|| missing_key(ctx, "response", "add `response: <column to explain>`"))?;
-    let response = nonempty(ctx, "response", response, "the name of the column to explain")?;
+    let response = raw
+        .response
+        .ok_or_else(|| missing_key(ctx, "response", "add `response: <column to explain>`"))?;
+    let response = nonempty(
+        ctx,
+        "response",
+        response,
+        "the name of the column to explain",
+    )?;
 
     // Every column may appear once: as the response or in one term.
     let mut used: Vec<(String, String)> = vec![(response.clone(), "response".into())];
@@ -186,14 +236,23 @@ pub(crate) fn from_raw(ctx: &Ctx, raw: RawStudy, base_dir: &Path) -> Result<Stud
         if column == response {
             return Err(ctx.err(
                 path,
-                format!("the response {} is also used as a {kind} term", quote(column)),
-                format!("a column cannot explain itself; remove it from `{}`", if kind == "linear" { "linear" } else { "smooth" }),
+                format!(
+                    "the response {} is also used as a {kind} term",
+                    quote(column)
+                ),
+                format!(
+                    "a column cannot explain itself; remove it from `{}`",
+                    if kind == "linear" { "linear" } else { "smooth" }
+                ),
             ));
         }
         if let Some((_, first)) = used.iter().find(|(c, _)| c == column) {
             return Err(ctx.err(
                 path,
-                format!("the column {} is used twice: in {first} and in {path}", quote(column)),
+                format!(
+                    "the column {} is used twice: in {first} and in {path}",
+                    quote(column)
+                ),
                 "use each column in one term only",
             ));
         }
@@ -204,29 +263,54 @@ pub(crate) fn from_raw(ctx: &Ctx, raw: RawStudy, base_dir: &Path) -> Result<Stud
     let mut linear = Vec::new();
     for (i, t) in raw.linear.unwrap_or_default().into_iter().enumerate() {
         let path = format!("linear[{i}]");
-        let column = t
-            .column
-            .ok_or_else(|| missing_key(ctx, &format!("{path}.column"), "each term names its column: `- column: <name>`"))?;
-        let column = nonempty(ctx, &format!("{path}.column"), column, "the name of a column")?;
+        let column = t.column.ok_or_else(|| {
+            missing_key(
+                ctx,
+                &format!("{path}.column"),
+                "each term names its column: `- column: <name>`",
+            )
+        })?;
+        let column = nonempty(
+            ctx,
+            &format!("{path}.column"),
+            column,
+            "the name of a column",
+        )?;
         claim(&format!("{path}.column"), &column, "linear")?;
         let categorical = t.categorical.unwrap_or(false);
         if t.reference.is_some() && !categorical {
             return Err(ctx.err(
                 &format!("{path}.reference"),
-                format!("`reference` is given for {} but the term is not categorical", quote(&column)),
+                format!(
+                    "`reference` is given for {} but the term is not categorical",
+                    quote(&column)
+                ),
                 "add `categorical: true` to the term, or remove `reference`",
             ));
         }
-        linear.push(LinearTerm { column, categorical, reference: t.reference });
+        linear.push(LinearTerm {
+            column,
+            categorical,
+            reference: t.reference,
+        });
     }
 
     let mut smooth = Vec::new();
     for (i, t) in raw.smooth.unwrap_or_default().into_iter().enumerate() {
         let path = format!("smooth[{i}]");
-        let column = t
-            .column
-            .ok_or_else(|| missing_key(ctx, &format!("{path}.column"), "each term names its column: `- column: <name>`"))?;
-        let column = nonempty(ctx, &format!("{path}.column"), column, "the name of a column")?;
+        let column = t.column.ok_or_else(|| {
+            missing_key(
+                ctx,
+                &format!("{path}.column"),
+                "each term names its column: `- column: <name>`",
+            )
+        })?;
+        let column = nonempty(
+            ctx,
+            &format!("{path}.column"),
+            column,
+            "the name of a column",
+        )?;
         claim(&format!("{path}.column"), &column, "smooth")?;
         let degree = t.degree.unwrap_or(3);
         if !(1..=MAX_DEGREE).contains(&degree) {
@@ -237,26 +321,50 @@ pub(crate) fn from_raw(ctx: &Ctx, raw: RawStudy, base_dir: &Path) -> Result<Stud
             ));
         }
         if let Some(grid) = &t.basis_sizes {
-            check_grid(ctx, &format!("{path}.basis-sizes"), grid, Some((degree, &column)))?;
+            check_grid(
+                ctx,
+                &format!("{path}.basis-sizes"),
+                grid,
+                Some((degree, &column)),
+            )?;
         }
         let knots = match t.knots.unwrap_or(RawKnots::Quantile) {
             RawKnots::Quantile => KnotPlacement::Quantile,
             RawKnots::Uniform => KnotPlacement::Uniform,
         };
-        smooth.push(SmoothTerm { column, degree, knots, basis_sizes: t.basis_sizes });
+        smooth.push(SmoothTerm {
+            column,
+            degree,
+            knots,
+            basis_sizes: t.basis_sizes,
+        });
     }
 
-    let rs = raw.selection.unwrap_or(RawSelection { basis_sizes: None, bic_penalty: None, robust_scale: None });
-    let basis_sizes = rs.basis_sizes.unwrap_or_else(|| DEFAULT_BASIS_SIZES.to_vec());
+    let rs = raw.selection.unwrap_or(RawSelection {
+        basis_sizes: None,
+        bic_penalty: None,
+        robust_scale: None,
+    });
+    let basis_sizes = rs
+        .basis_sizes
+        .unwrap_or_else(|| DEFAULT_BASIS_SIZES.to_vec());
     check_grid(ctx, "selection.basis-sizes", &basis_sizes, None)?;
     for t in smooth.iter().filter(|t| t.basis_sizes.is_none()) {
-        check_grid(ctx, "selection.basis-sizes", &basis_sizes, Some((t.degree, &t.column)))?;
+        check_grid(
+            ctx,
+            "selection.basis-sizes",
+            &basis_sizes,
+            Some((t.degree, &t.column)),
+        )?;
     }
     let bic_penalty = rs.bic_penalty.unwrap_or(0.5);
     if !bic_penalty.is_finite() || bic_penalty < 0.0 {
         return Err(ctx.err(
             "selection.bic-penalty",
-            format!("bic-penalty {} is out of range; it must be a finite number of 0 or more", num(bic_penalty)),
+            format!(
+                "bic-penalty {} is out of range; it must be a finite number of 0 or more",
+                num(bic_penalty)
+            ),
             "0.5 is the default, 1 is the Schwarz criterion",
         ));
     }
@@ -265,7 +373,12 @@ pub(crate) fn from_raw(ctx: &Ctx, raw: RawStudy, base_dir: &Path) -> Result<Stud
         RawRobustScale::PerSize => RobustScaleMode::PerSize,
     };
 
-    let rr = raw.robust.unwrap_or(RawRobust { loss: None, efficiency: None, start: None, subsamples: None });
+    let rr = raw.robust.unwrap_or(RawRobust {
+        loss: None,
+        efficiency: None,
+        start: None,
+        subsamples: None,
+    });
     let loss = match rr.loss.unwrap_or(RawLoss::Bisquare) {
         RawLoss::Bisquare => LossChoice::Bisquare,
         RawLoss::Huber => LossChoice::Huber,
@@ -293,7 +406,9 @@ pub(crate) fn from_raw(ctx: &Ctx, raw: RawStudy, base_dir: &Path) -> Result<Stud
     if !(1..=MAX_SUBSAMPLES).contains(&subsamples) {
         return Err(ctx.err(
             "robust.subsamples",
-            format!("subsamples {subsamples} is out of range; it must be from 1 to {MAX_SUBSAMPLES}"),
+            format!(
+                "subsamples {subsamples} is out of range; it must be from 1 to {MAX_SUBSAMPLES}"
+            ),
             "500 is the default and enough for most studies",
         ));
     }
@@ -307,7 +422,10 @@ pub(crate) fn from_raw(ctx: &Ctx, raw: RawStudy, base_dir: &Path) -> Result<Stud
         ));
     }
 
-    let rsens = raw.sensitivity.unwrap_or(RawSensitivity { refit_without_flagged: None, influence: None });
+    let rsens = raw.sensitivity.unwrap_or(RawSensitivity {
+        refit_without_flagged: None,
+        influence: None,
+    });
     let sensitivity = SensitivitySettings {
         refit_without_flagged: rsens.refit_without_flagged.unwrap_or(true),
         influence: rsens.influence.unwrap_or(true),
@@ -327,11 +445,23 @@ pub(crate) fn from_raw(ctx: &Ctx, raw: RawStudy, base_dir: &Path) -> Result<Stud
         response,
         linear,
         smooth,
-        selection: Selection { basis_sizes, bic_penalty, robust_scale },
-        robust: RobustSettings { loss, efficiency, start, subsamples },
+        selection: Selection {
+            basis_sizes,
+            bic_penalty,
+            robust_scale,
+        },
+        robust: RobustSettings {
+            loss,
+            efficiency,
+            start,
+            subsamples,
+        },
         outliers: OutlierSettings { cutoff },
         sensitivity,
-        report: ReportSettings { notes_as_written, notes_markdown },
+        report: ReportSettings {
+            notes_as_written,
+            notes_markdown,
+        },
     })
 }
 
@@ -347,12 +477,20 @@ fn read_notes(ctx: &Ctx, notes: &str, base_dir: &Path) -> Result<String> {
     let is_md = name.to_ascii_lowercase().ends_with(".md");
     if is_md || path.is_file() {
         if path.is_dir() {
-            return Err(ctx.err("report.notes", format!("the notes file {} is a directory", quote(name)), "name a markdown file"));
+            return Err(ctx.err(
+                "report.notes",
+                format!("the notes file {} is a directory", quote(name)),
+                "name a markdown file",
+            ));
         }
         return std::fs::read_to_string(&path).map_err(|e| {
             ctx.err(
                 "report.notes",
-                format!("cannot read the notes file {}: {}", quote(name), crate::error::describe_io(&e)),
+                format!(
+                    "cannot read the notes file {}: {}",
+                    quote(name),
+                    crate::error::describe_io(&e)
+                ),
                 "paths in the spec are relative to the spec's folder; or write the notes inline",
             )
         });

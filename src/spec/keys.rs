@@ -23,8 +23,16 @@ fn check_map(ctx: &Ctx, v: &Value, path: &str, expected: &[&str], what: &str) ->
     for k in m.keys() {
         let key = key_text(k);
         if !expected.contains(&key.as_str()) {
-            let full = if path.is_empty() { key.clone() } else { format!("{path}.{key}") };
-            let list = expected.iter().map(|e| format!("`{e}`")).collect::<Vec<_>>().join(", ");
+            let full = if path.is_empty() {
+                key.clone()
+            } else {
+                format!("{path}.{key}")
+            };
+            let list = expected
+                .iter()
+                .map(|e| format!("`{e}`"))
+                .collect::<Vec<_>>()
+                .join(", ");
             let hint = match nearest(&key, expected.iter().copied()) {
                 Some(s) => format!("did you mean `{s}`? The keys of {what} are {list}"),
                 None => format!("the keys of {what} are {list}"),

@@ -75,7 +75,11 @@ fn split_key(s: &str) -> Option<(String, &str)> {
 impl Locator {
     pub(crate) fn new(text: &str) -> Locator {
         let mut lines = HashMap::new();
-        let mut stack = vec![Frame { col: -1, seg: Segment::Root, next_index: 0 }];
+        let mut stack = vec![Frame {
+            col: -1,
+            seg: Segment::Root,
+            next_index: 0,
+        }];
         // While inside a block scalar: lines indented deeper than this column are its text.
         let mut scalar_col: Option<isize> = None;
         for (n, raw_line) in text.lines().enumerate() {
@@ -107,7 +111,11 @@ impl Locator {
                     }
                     None => 0,
                 };
-                stack.push(Frame { col, seg: Segment::Index(index), next_index: 0 });
+                stack.push(Frame {
+                    col,
+                    seg: Segment::Index(index),
+                    next_index: 0,
+                });
                 lines.entry(path_of(&stack)).or_insert(line_no);
                 let after = rest[1..].trim_start_matches(' ');
                 col += (rest.len() - after.len()) as isize;
@@ -117,7 +125,11 @@ impl Locator {
                 while stack.last().is_some_and(|f| f.col >= col) {
                     stack.pop();
                 }
-                stack.push(Frame { col, seg: Segment::Key(key), next_index: 0 });
+                stack.push(Frame {
+                    col,
+                    seg: Segment::Key(key),
+                    next_index: 0,
+                });
                 lines.entry(path_of(&stack)).or_insert(line_no);
                 let v = value.trim_start();
                 if v.starts_with('|') || v.starts_with('>') {

@@ -52,9 +52,11 @@ pub fn load(path: &Path) -> Result<Study> {
 }
 
 fn too_large(display: &str, len: u64) -> Error {
-    Error::new(format!("the spec is {len} bytes long; at most {MAX_SPEC_BYTES} bytes (1 MiB) are read"))
-        .at(display)
-        .hint("a study spec is a short YAML file; check that this is the right file")
+    Error::new(format!(
+        "the spec is {len} bytes long; at most {MAX_SPEC_BYTES} bytes (1 MiB) are read"
+    ))
+    .at(display)
+    .hint("a study spec is a short YAML file; check that this is the right file")
 }
 
 /// Parse and check spec text. `spec_display` names the spec in messages; `base_dir` is the folder
@@ -63,7 +65,11 @@ pub fn parse(text: &str, spec_display: &str, base_dir: &Path) -> Result<Study> {
     if text.len() as u64 > MAX_SPEC_BYTES {
         return Err(too_large(spec_display, text.len() as u64));
     }
-    let ctx = Ctx { spec: spec_display, text, locator: locate::Locator::new(text) };
+    let ctx = Ctx {
+        spec: spec_display,
+        text,
+        locator: locate::Locator::new(text),
+    };
     // First the untyped tree: YAML syntax, duplicate keys, alias limits, the shape of the root and
     // unknown keys (with full key paths), then typed deserialization, then the checks.
     let value: serde_yaml::Value =
@@ -106,7 +112,12 @@ impl Ctx<'_> {
         }
     }
 
-    pub(crate) fn err(&self, path: &str, what: impl Into<String>, hint: impl Into<String>) -> Error {
+    pub(crate) fn err(
+        &self,
+        path: &str,
+        what: impl Into<String>,
+        hint: impl Into<String>,
+    ) -> Error {
         Error::new(what).at(self.at(path)).hint(hint)
     }
 }

@@ -100,7 +100,11 @@ impl Study {
         o.push_str("outliers:\n");
         let _ = writeln!(o, "  cutoff: {}", float(self.outliers.cutoff));
         o.push_str("sensitivity:\n");
-        let _ = writeln!(o, "  refit-without-flagged: {}", self.sensitivity.refit_without_flagged);
+        let _ = writeln!(
+            o,
+            "  refit-without-flagged: {}",
+            self.sensitivity.refit_without_flagged
+        );
         let _ = writeln!(o, "  influence: {}", self.sensitivity.influence);
         match &self.report.notes_as_written {
             Some(n) => {

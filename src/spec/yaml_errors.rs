@@ -100,7 +100,11 @@ fn reword(msg: &str) -> (String, Option<String>) {
         // unknown variant `quantil`, expected `quantile` or `uniform`
         let ticked: Vec<&str> = rest.split('`').skip(1).step_by(2).collect();
         if let Some((given, options)) = ticked.split_first() {
-            let list = options.iter().map(|o| format!("`{o}`")).collect::<Vec<_>>().join(" or ");
+            let list = options
+                .iter()
+                .map(|o| format!("`{o}`"))
+                .collect::<Vec<_>>()
+                .join(" or ");
             let hint = match nearest(given, options.iter().copied()) {
                 Some(s) => format!("did you mean `{s}`? The choices are {list}"),
                 None => format!("the choices are {list}"),
@@ -109,11 +113,17 @@ fn reword(msg: &str) -> (String, Option<String>) {
         }
     }
     if let Some(rest) = msg.strip_prefix("duplicate field ") {
-        return (format!("the key {rest} is given twice"), Some("remove one of them".into()));
+        return (
+            format!("the key {rest} is given twice"),
+            Some("remove one of them".into()),
+        );
     }
     if let Some(rest) = msg.strip_prefix("duplicate entry with key ") {
         let key = rest.trim_matches('"');
-        return (format!("the key `{key}` is given twice"), Some("remove one of them".into()));
+        return (
+            format!("the key `{key}` is given twice"),
+            Some("remove one of them".into()),
+        );
     }
     (msg.to_string(), None)
 }
@@ -140,12 +150,15 @@ fn generic(path: &str) -> String {
 fn key_hint(path: &str) -> Option<&'static str> {
     Some(match generic(path).as_str() {
         "knotwise" => "write `knotwise: 1` (the spec format version)",
-        "title" | "response" | "data.file" | "data.id" | "date" | "data.sha256" | "report.notes" => {
+        "title" | "response" | "data.file" | "data.id" | "date" | "data.sha256"
+        | "report.notes" => {
             "write the value as text; quote it if it could be read as a number or true/false"
         }
         "seed" => "the seed is a whole number from 0 to 18446744073709551615, e.g. `seed: 4172`",
         "data" => "`data` is a mapping with at least `file: <path to the CSV>`",
-        "data.missing" => "list the tokens that mark a missing value, e.g. `missing: [\"\", \"NA\"]`",
+        "data.missing" => {
+            "list the tokens that mark a missing value, e.g. `missing: [\"\", \"NA\"]`"
+        }
         "linear" => "`linear` is a list of terms, each `- column: <name>`",
         "smooth" => "`smooth` is a list of terms, each `- column: <name>`",
         "linear[]" | "smooth[]" => "each term is a mapping such as `- column: <name>`",
@@ -155,8 +168,12 @@ fn key_hint(path: &str) -> Option<&'static str> {
             "list whole numbers of basis functions, e.g. `basis-sizes: [4, 5, 6]`"
         }
         "selection.bic-penalty" => "the penalty is a number of 0 or more (0.5 is the default)",
-        "robust.efficiency" => "the efficiency is a number above 0.5 and below 1 (0.95 is the default)",
-        "robust.subsamples" => "the number of subsamples is a whole number from 1 to 100000 (default 500)",
+        "robust.efficiency" => {
+            "the efficiency is a number above 0.5 and below 1 (0.95 is the default)"
+        }
+        "robust.subsamples" => {
+            "the number of subsamples is a whole number from 1 to 100000 (default 500)"
+        }
         "outliers.cutoff" => "the cutoff is a number above 0 and at most 10 (2.5 is the default)",
         "sensitivity.refit-without-flagged" | "sensitivity.influence" => "write `true` or `false`",
         _ => return None,
@@ -179,7 +196,8 @@ fn duplicate_key(msg: &str) -> Option<&str> {
     if let Some(rest) = msg.strip_prefix("duplicate entry with key ") {
         return Some(rest.trim_matches('"'));
     }
-    msg.strip_prefix("duplicate field ").map(|r| r.trim_matches('`'))
+    msg.strip_prefix("duplicate field ")
+        .map(|r| r.trim_matches('`'))
 }
 
 /// 1-based line of the second line that starts (after indentation) with `key:`.
@@ -187,7 +205,11 @@ fn second_occurrence(text: &str, key: &str) -> Option<usize> {
     let pattern = format!("{key}:");
     text.lines()
         .enumerate()
-        .filter(|(_, l)| l.trim_start().trim_start_matches("- ").starts_with(&pattern))
+        .filter(|(_, l)| {
+            l.trim_start()
+                .trim_start_matches("- ")
+                .starts_with(&pattern)
+        })
         .nth(1)
         .map(|(i, _)| i + 1)
 }
@@ -207,7 +229,9 @@ pub(crate) fn map(ctx: &Ctx, err: &serde_yaml::Error) -> Error {
             Some(l) => format!("{}, line {}, column {}", ctx.spec, l.line(), l.column()),
             None => ctx.spec.to_string(),
         };
-        return Error::new("the spec is nested too deeply").at(at).hint("a study spec needs a few levels of nesting at most");
+        return Error::new("the spec is nested too deeply")
+            .at(at)
+            .hint("a study spec needs a few levels of nesting at most");
     }
     let (what, own_hint) = reword(msg);
     if let Some(key) = duplicate_key(msg) {
@@ -247,7 +271,11 @@ pub(crate) fn map(ctx: &Ctx, err: &serde_yaml::Error) -> Error {
             } else {
                 own_hint
             };
-            let what = if what.starts_with("the key ") { what } else { format!("this is not valid YAML: {what}") };
+            let what = if what.starts_with("the key ") {
+                what
+            } else {
+                format!("this is not valid YAML: {what}")
+            };
             let e = Error::new(what).at(at);
             match hint {
                 Some(h) => e.hint(h),
