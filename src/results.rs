@@ -31,7 +31,7 @@ impl Sizes {
 
 impl Serialize for Sizes {
     fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        // serde_json's Map is sorted; we keep the spec's term order by serialising pairs ourselves.
+        // serde_json is built with preserve_order, so the map keeps the spec's term order.
         let mut map = s.serialize_map(Some(self.0.len()))?;
         for (k, v) in &self.0 {
             map.serialize_entry(k, v)?;
