@@ -52,7 +52,11 @@ pub fn frame_request(study: &Study) -> FrameRequest {
 pub fn model_terms(study: &Study) -> ModelTerms {
     ModelTerms {
         response: study.response.clone(),
-        linear: study.linear.iter().map(|t| LinearSpec { column: t.column.clone(), categorical: t.categorical }).collect(),
+        linear: study
+            .linear
+            .iter()
+            .map(|t| LinearSpec { column: t.column.clone(), categorical: t.categorical })
+            .collect(),
         smooth: study
             .smooth
             .iter()
@@ -68,7 +72,9 @@ pub fn robust_plan(study: &Study) -> RobustPlan {
         (LossChoice::Huber, StartChoice::SEstimate) => {
             RobustMethod::HuberFixedScale { k: huber_tuning(study.robust.efficiency) }
         }
-        (LossChoice::Huber, StartChoice::LeastSquares) => RobustMethod::HuberJoint { k: huber_tuning(study.robust.efficiency) },
+        (LossChoice::Huber, StartChoice::LeastSquares) => {
+            RobustMethod::HuberJoint { k: huber_tuning(study.robust.efficiency) }
+        }
     };
     let s_options = SOptions { subsamples: study.robust.subsamples, seed: study.seed, ..SOptions::default() };
     RobustPlan {
@@ -100,21 +106,33 @@ pub fn fit_error(e: FitError, names: &[String], context: &str) -> Error {
             let what = if with.is_empty() {
                 format!("the design is rank deficient: column `{col}` is zero or constant")
             } else {
-                format!("the design is rank deficient: column `{col}` is a linear combination of {}", with.iter().map(|w| format!("`{w}`")).collect::<Vec<_>>().join(", "))
+                format!(
+                    "the design is rank deficient: column `{col}` is a linear combination of {}",
+                    with.iter().map(|w| format!("`{w}`")).collect::<Vec<_>>().join(", ")
+                )
             };
-            Error::new(what).at(context).hint("remove one of the aliased terms, or check the data for a column that duplicates another")
+            Error::new(what)
+                .at(context)
+                .hint("remove one of the aliased terms, or check the data for a column that duplicates another")
         }
-        FitError::TooFewRows { rows, columns } => Error::new(format!(
-            "too few rows: {rows} rows for {columns} model coefficients"
-        ))
+        FitError::TooFewRows { rows, columns } => {
+            Error::new(format!("too few rows: {rows} rows for {columns} model coefficients"))
+                .at(context)
+                .hint("use fewer terms or smaller basis sizes, or supply more data")
+        }
+        FitError::NonFinite => {
+            Error::new("a non-finite number appeared in the fit").at(context).hint("check the data for extreme values")
+        }
+        FitError::DegenerateCovariance => Error::new(
+            "the robust fit's covariance is undefined: almost every residual lies beyond the loss's tuning constant",
+        )
         .at(context)
-        .hint("use fewer terms or smaller basis sizes, or supply more data"),
-        FitError::NonFinite => Error::new("a non-finite number appeared in the fit").at(context).hint("check the data for extreme values"),
-        FitError::NoSubsample { tried } => Error::new(format!(
-            "no non-singular subsample found for the robust start after {tried} draws"
-        ))
-        .at(context)
-        .hint("the design may be nearly singular: check categorical levels with very few rows"),
+        .hint("check the response for a gross recording problem, or use `loss: huber`"),
+        FitError::NoSubsample { tried } => {
+            Error::new(format!("no non-singular subsample found for the robust start after {tried} draws"))
+                .at(context)
+                .hint("the design may be nearly singular: check categorical levels with very few rows")
+        }
     }
 }
 
@@ -130,15 +148,20 @@ pub fn analyse(study: Study, frame: Frame, spec_display: &str) -> Result<Analysi
                 .iter()
                 .map(|p| format!("sizes {:?}: {}", p.sizes, p.skipped.clone().unwrap_or_else(|| "no criterion".into())))
                 .collect();
-            return Err(Error::new(format!("no basis size on the grid is possible for these data:\n    {}", reasons.join("\n    ")))
-                .at(format!("{spec_display}: selection.basis-sizes"))
-                .hint("choose smaller basis sizes, or use `knots: uniform` for a column with many tied values"));
+            return Err(Error::new(format!(
+                "no basis size on the grid is possible for these data:\n    {}",
+                reasons.join("\n    ")
+            ))
+            .at(format!("{spec_display}: selection.basis-sizes"))
+            .hint("choose smaller basis sizes, or use `knots: uniform` for a column with many tied values"));
         }
         Err(SelectError::Fit(e, sizes)) => {
             let names = select_names(&frame, &terms, &sizes);
             return Err(fit_error(e, &names, spec_display));
         }
-        Err(SelectError::Design(e)) => return Err(Error::new(format!("cannot build the design: {e:?}")).at(spec_display)),
+        Err(SelectError::Design(e)) => {
+            return Err(Error::new(format!("cannot build the design: {e:?}")).at(spec_display))
+        }
     };
     let sensitivity = sensitivity::analyse(
         &frame,

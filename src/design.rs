@@ -61,7 +61,13 @@ pub struct SmoothEncoding {
 
 impl SmoothEncoding {
     /// Build the basis and its centring means on the sample `x`.
-    pub fn new(column: &str, x: &[f64], degree: usize, size: usize, placement: KnotPlacement) -> Result<Self, BasisError> {
+    pub fn new(
+        column: &str,
+        x: &[f64],
+        degree: usize,
+        size: usize,
+        placement: KnotPlacement,
+    ) -> Result<Self, BasisError> {
         let basis = Basis::for_sample(x, degree, size, placement)?;
         let k = basis.size();
         let mut sums = vec![0.0; k];
@@ -129,8 +135,11 @@ impl Design {
         let mut encodings = Vec::with_capacity(terms.smooth.len());
         for (s, &k) in terms.smooth.iter().zip(sizes) {
             let x = frame.numeric(&s.column).ok_or_else(|| DesignError::MissingColumn(s.column.clone()))?;
-            let enc = SmoothEncoding::new(&s.column, x, s.degree, k, s.knots)
-                .map_err(|error| DesignError::Basis { column: s.column.clone(), size: k, error })?;
+            let enc = SmoothEncoding::new(&s.column, x, s.degree, k, s.knots).map_err(|error| DesignError::Basis {
+                column: s.column.clone(),
+                size: k,
+                error,
+            })?;
             encodings.push(enc);
         }
         Design::with_encodings(frame, terms, encodings, None)

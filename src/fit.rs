@@ -24,6 +24,8 @@ pub enum FitError {
     NonFinite,
     /// No non-singular subsample could be drawn for the S-estimate.
     NoSubsample { tried: usize },
+    /// The robust covariance is undefined: mean ψ′ at the solution is about zero.
+    DegenerateCovariance,
 }
 
 impl From<LinalgError> for FitError {
@@ -42,6 +44,8 @@ impl From<RobustError> for FitError {
             RobustError::TooFewRows { rows, columns } => FitError::TooFewRows { rows, columns },
             RobustError::AllSubsamplesSingular { tried } => FitError::NoSubsample { tried },
             RobustError::NonFinite => FitError::NonFinite,
+            RobustError::RankDeficient { column, aliased_with } => FitError::RankDeficient { column, aliased_with },
+            RobustError::DegenerateCovariance { .. } => FitError::DegenerateCovariance,
         }
     }
 }
@@ -127,7 +131,13 @@ fn total_sum_of_squares(y: &[f64]) -> f64 {
     y.iter().map(|v| (v - mean) * (v - mean)).sum()
 }
 
-fn finish(design: &Design, coef: Vec<f64>, cov: Vec<f64>, scale: f64, critical: f64) -> (Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>) {
+fn finish(
+    design: &Design,
+    coef: Vec<f64>,
+    cov: Vec<f64>,
+    scale: f64,
+    critical: f64,
+) -> (Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>) {
     let p = design.p;
     let std_errors: Vec<f64> = (0..p).map(|j| cov[j * p + j].max(0.0).sqrt()).collect();
     let lower = (0..p).map(|j| coef[j] - critical * std_errors[j]).collect();
@@ -151,7 +161,8 @@ pub fn classical(design: &Design) -> Result<Fit, FitError> {
     let inv = ls.xtx_inverse();
     let cov: Vec<f64> = inv.iter().map(|v| v * sigma2).collect();
     let critical = dist::t_quantile(0.975, df);
-    let (coef, cov, std_errors, lower, upper, fitted, residuals) = finish(design, ls.coef, cov, sigma2.sqrt(), critical);
+    let (coef, cov, std_errors, lower, upper, fitted, residuals) =
+        finish(design, ls.coef, cov, sigma2.sqrt(), critical);
     let tss = total_sum_of_squares(&design.y);
     let r_squared = if tss > 0.0 { 1.0 - ls.rss / tss } else { 1.0 };
     Ok(Fit {
@@ -202,7 +213,7 @@ pub fn robust(
     let ls = linalg::qr_solve(&design.x, n, p, &design.y, None)?;
     let inv = ls.xtx_inverse();
     let cov = if est.scale > 0.0 {
-        sandwich::huber_sandwich(&design.x, n, p, &est.residuals, est.scale, loss.as_ref(), &inv)
+        sandwich::huber_sandwich(&design.x, n, p, &est.residuals, est.scale, loss.as_ref(), &inv)?
     } else {
         vec![0.0; p * p]
     };

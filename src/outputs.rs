@@ -59,10 +59,15 @@ pub fn warnings(a: &Analysis) -> Vec<String> {
     }
     let skipped = sel.points.iter().filter(|p| p.skipped.is_some()).count();
     if skipped > 0 {
-        w.push(format!("{skipped} grid point(s) were impossible for these data and skipped (see the selection section)."));
+        w.push(format!(
+            "{skipped} grid point(s) were impossible for these data and skipped (see the selection section)."
+        ));
     }
     if !a.frame.dropped.is_empty() {
-        w.push(format!("{} row(s) were dropped for missing values (listed in the data section).", a.frame.dropped.len()));
+        w.push(format!(
+            "{} row(s) were dropped for missing values (listed in the data section).",
+            a.frame.dropped.len()
+        ));
     }
     let s = &a.sensitivity;
     let expected = s.expected_false;
@@ -85,15 +90,22 @@ pub fn results(a: &Analysis, inputs: &Inputs) -> Results {
     let sens = &a.sensitivity;
     let cd = &sel.classical_design;
     let rd = &sel.robust_design;
-    let mut classical = fit_out("least-squares", "squared", None, cd, &sel.classical_fit, &curves_of(cd, &sel.classical_fit));
+    let mut classical =
+        fit_out("least-squares", "squared", None, cd, &sel.classical_fit, &curves_of(cd, &sel.classical_fit));
     classical.method = "least-squares-qr".into();
     let m = a.plan.method;
-    let mut robust = fit_out(method_name(m), m.loss_name(), Some(m.tuning()), rd, &sel.robust_fit, &curves_of(rd, &sel.robust_fit));
+    let mut robust =
+        fit_out(method_name(m), m.loss_name(), Some(m.tuning()), rd, &sel.robust_fit, &curves_of(rd, &sel.robust_fit));
     if let Some(s) = &sel.s_estimate {
-        let src = if sel.scale_source.is_empty() { sel.points[sel.robust_choice].sizes.clone() } else { sel.scale_source.clone() };
+        let src = if sel.scale_source.is_empty() {
+            sel.points[sel.robust_choice].sizes.clone()
+        } else {
+            sel.scale_source.clone()
+        };
         robust.start = Some(StartOut {
             kind: if sel.shared_scale.is_some() && src != sel.points[sel.robust_choice].sizes {
-                "s-estimate of the richest grid model; this size started from its MM fit projected onto this basis".into()
+                "s-estimate of the richest grid model; this size started from its MM fit projected onto this basis"
+                    .into()
             } else {
                 "s-estimate".into()
             },
@@ -114,7 +126,8 @@ pub fn results(a: &Analysis, inputs: &Inputs) -> Results {
     });
     let robust_without = sens.robust_without.as_ref().map(|f| {
         let keep_design = rd; // curves use the same encodings
-        let mut o = fit_out(method_name(m), m.loss_name(), Some(m.tuning()), keep_design, f, &curves_of(keep_design, f));
+        let mut o =
+            fit_out(method_name(m), m.loss_name(), Some(m.tuning()), keep_design, f, &curves_of(keep_design, f));
         o.n = f.residuals.len();
         o
     });
@@ -203,7 +216,11 @@ pub fn results(a: &Analysis, inputs: &Inputs) -> Results {
             .leverage
             .high
             .iter()
-            .map(|&i| LeverageOut { row: a.frame.ids[i].clone(), line: a.frame.lines[i], leverage: finite(sens.leverage.hat[i]) })
+            .map(|&i| LeverageOut {
+                row: a.frame.ids[i].clone(),
+                line: a.frame.lines[i],
+                leverage: finite(sens.leverage.hat[i]),
+            })
             .collect(),
     };
     let conclusion_changes = sens.coefficients.iter().any(|c| c.sign_changes || c.significance_changes);
@@ -230,16 +247,24 @@ pub fn results(a: &Analysis, inputs: &Inputs) -> Results {
             })
             .collect(),
         classical_rerun_basis_sizes: sens.rerun_choice.map(|i| sizes_of(a, &sens.rerun_points[i].sizes)),
-        classical_rerun_changes_size: sens.rerun_choice.map(|i| sens.rerun_points[i].sizes != sel.points[sel.classical_choice].sizes),
+        classical_rerun_changes_size: sens
+            .rerun_choice
+            .map(|i| sens.rerun_points[i].sizes != sel.points[sel.classical_choice].sizes),
         robust_largest_move_in_se: sens.robust_move.and_then(finite),
         influence: sens
             .influence
             .iter()
             .map(|inf| {
                 let lin = crate::sensitivity::linear_columns(cd);
-                let dfbetas: Vec<NamedValue> =
-                    lin.iter().map(|&j| NamedValue { name: cd.names[j].clone(), value: finite(inf.dfbetas[j]) }).collect();
-                let largest = dfbetas.iter().filter_map(|v| v.value).map(f64::abs).fold(None, |m: Option<f64>, v| Some(m.map_or(v, |m| m.max(v))));
+                let dfbetas: Vec<NamedValue> = lin
+                    .iter()
+                    .map(|&j| NamedValue { name: cd.names[j].clone(), value: finite(inf.dfbetas[j]) })
+                    .collect();
+                let largest = dfbetas
+                    .iter()
+                    .filter_map(|v| v.value)
+                    .map(f64::abs)
+                    .fold(None, |m: Option<f64>, v| Some(m.map_or(v, |m| m.max(v))));
                 InfluenceOut { row: a.frame.ids[inf.row].clone(), line: a.frame.lines[inf.row], dfbetas, largest }
             })
             .collect(),
@@ -255,7 +280,12 @@ pub fn results(a: &Analysis, inputs: &Inputs) -> Results {
             n_rows_read: a.frame.n_read,
             n_rows_used: a.frame.n_used(),
             dropped: a.frame.dropped.iter().map(|d| DroppedOut { line: d.line, columns: d.columns.clone() }).collect(),
-            missing_per_column: a.frame.missing_per_column.iter().map(|(c, n)| MissingOut { column: c.clone(), rows: *n }).collect(),
+            missing_per_column: a
+                .frame
+                .missing_per_column
+                .iter()
+                .map(|(c, n)| MissingOut { column: c.clone(), rows: *n })
+                .collect(),
         },
         fits: FitsOut { classical, robust, classical_without_flagged: without, robust_without_flagged: robust_without },
         selection,
@@ -305,7 +335,8 @@ pub fn rows_csv(a: &Analysis) -> String {
         (0..n).map(|i| d.row(i).iter().zip(&f.coef).map(|(x, b)| x * b).sum()).collect()
     });
     let mut w = csv::WriterBuilder::new().terminator(csv::Terminator::Any(b'\n')).from_writer(Vec::new());
-    let mut header = vec!["row", "line", "observed", "classical-fitted", "classical-residual", "robust-fitted", "robust-residual"];
+    let mut header =
+        vec!["row", "line", "observed", "classical-fitted", "classical-residual", "robust-fitted", "robust-residual"];
     if without_pred.is_some() {
         header.push("classical-without-flagged-fitted");
         header.push("classical-without-flagged-residual");

@@ -276,7 +276,14 @@ pub fn finite(v: f64) -> Option<f64> {
 }
 
 /// The coefficient table and curves of one fit.
-pub fn fit_out(method: &str, loss: &str, tuning: Option<f64>, design: &Design, fit: &Fit, curves: &[crate::fit::Curve]) -> FitOut {
+pub fn fit_out(
+    method: &str,
+    loss: &str,
+    tuning: Option<f64>,
+    design: &Design,
+    fit: &Fit,
+    curves: &[crate::fit::Curve],
+) -> FitOut {
     let coefficients = design
         .names
         .iter()

@@ -150,7 +150,8 @@ fn candidate_points(spec: &GridSpec, n_smooth: usize) -> (SearchKind, Vec<Vec<us
     if spec.per_term.iter().all(|g| g.is_none()) {
         return (SearchKind::Shared, spec.shared.iter().map(|&k| vec![k; n_smooth]).collect());
     }
-    let lists: Vec<Vec<usize>> = spec.per_term.iter().map(|g| g.clone().unwrap_or_else(|| spec.shared.clone())).collect();
+    let lists: Vec<Vec<usize>> =
+        spec.per_term.iter().map(|g| g.clone().unwrap_or_else(|| spec.shared.clone())).collect();
     let total = lists.iter().map(|l| l.len()).product::<usize>();
     if total <= MAX_PRODUCT_POINTS {
         let mut points = vec![vec![]];
@@ -189,7 +190,8 @@ struct Evaluated {
 
 impl Evaluator<'_> {
     fn evaluate(&self, sizes: &[usize]) -> Result<Evaluated, SelectError> {
-        let mut point = GridPoint { sizes: sizes.to_vec(), p: 0, bic: None, rbic: None, robust_termination: None, skipped: None };
+        let mut point =
+            GridPoint { sizes: sizes.to_vec(), p: 0, bic: None, rbic: None, robust_termination: None, skipped: None };
         let design = match Design::build(self.frame, self.terms, sizes) {
             Ok(d) => d,
             Err(e @ DesignError::Basis { .. }) => {
@@ -213,17 +215,21 @@ impl Evaluator<'_> {
             Err(e) => return Err(SelectError::Fit(e, sizes.to_vec())),
         };
         point.bic = Some(bic(classical.rss, design.n, design.p, self.spec.penalty));
-        let (start, scale, s_est) = match (self.plan.method.needs_s_estimate(), self.plan.scale_mode, self.shared_scale) {
+        let (start, scale, s_est) = match (self.plan.method.needs_s_estimate(), self.plan.scale_mode, self.shared_scale)
+        {
             (false, _, _) => (None, 0.0, None),
             (true, ScaleMode::Shared, Some(scale)) => {
                 let start = match &self.anchor {
-                    Some(anchor) => linalg::qr_solve(&design.x, design.n, design.p, anchor, None).ok().map(|ls| ls.coef),
+                    Some(anchor) => {
+                        linalg::qr_solve(&design.x, design.n, design.p, anchor, None).ok().map(|ls| ls.coef)
+                    }
                     None => None,
                 };
                 (start, scale, None)
             }
             _ => {
-                let s = fit::s_estimate(&design, &self.plan.s_options).map_err(|e| SelectError::Fit(e, sizes.to_vec()))?;
+                let s =
+                    fit::s_estimate(&design, &self.plan.s_options).map_err(|e| SelectError::Fit(e, sizes.to_vec()))?;
                 (Some(s.coef.clone()), s.scale, Some(s))
             }
         };
@@ -254,7 +260,8 @@ fn argmin(points: &[Evaluated], key: impl Fn(&GridPoint) -> Option<f64>) -> Opti
 pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustPlan) -> Result<Selection, SelectError> {
     let n_smooth = terms.smooth.len();
     let (search, mut candidates) = candidate_points(spec, n_smooth);
-    let lists: Vec<Vec<usize>> = spec.per_term.iter().map(|g| g.clone().unwrap_or_else(|| spec.shared.clone())).collect();
+    let lists: Vec<Vec<usize>> =
+        spec.per_term.iter().map(|g| g.clone().unwrap_or_else(|| spec.shared.clone())).collect();
     let mut ev = Evaluator { frame, terms, spec, plan, shared_scale: None, anchor: None };
 
     // The shared scale: S-estimate of the richest model that can be built (largest sizes first).

@@ -47,7 +47,8 @@ pub fn boxplot(values: &[f64]) -> Boxplot {
     let iqr = q3 - q1;
     let lower_fence = q1 - 1.5 * iqr;
     let upper_fence = q3 + 1.5 * iqr;
-    let outside = values.iter().enumerate().filter(|(_, v)| **v < lower_fence || **v > upper_fence).map(|(i, _)| i).collect();
+    let outside =
+        values.iter().enumerate().filter(|(_, v)| **v < lower_fence || **v > upper_fence).map(|(i, _)| i).collect();
     Boxplot { q1, median, q3, lower_fence, upper_fence, outside }
 }
 
@@ -210,7 +211,8 @@ pub fn analyse(
     let (cd, cf) = classical;
     let (rd, rf) = robust;
     let n = rd.n;
-    let scaled: Vec<f64> = if rf.scale > 0.0 { rf.residuals.iter().map(|r| r / rf.scale).collect() } else { vec![0.0; n] };
+    let scaled: Vec<f64> =
+        if rf.scale > 0.0 { rf.residuals.iter().map(|r| r / rf.scale).collect() } else { vec![0.0; n] };
     let flagged = flag_rows(&scaled, cutoff);
     let expected_false = expected_false_flags(n, cutoff);
     let boxplot = boxplot(&scaled);
@@ -244,7 +246,14 @@ pub fn analyse(
         }
         let sub_frame = frame_subset(frame, &keep);
         for gp in grid_points {
-            let mut point = GridPoint { sizes: gp.sizes.clone(), p: 0, bic: None, rbic: None, robust_termination: None, skipped: None };
+            let mut point = GridPoint {
+                sizes: gp.sizes.clone(),
+                p: 0,
+                bic: None,
+                rbic: None,
+                robust_termination: None,
+                skipped: None,
+            };
             match crate::design::Design::build(&sub_frame, terms, &gp.sizes) {
                 Ok(d) => {
                     point.p = d.p;
@@ -285,7 +294,8 @@ pub fn analyse(
         let robust_curve = fit::curve(rd, rf, t, &grid);
         let classical_curve = fit::curve(cd, cf, t, &grid);
         let without = classical_without.as_ref().map(|(d, f)| fit::curve(d, f, t, &grid));
-        let mut half: Vec<f64> = robust_curve.upper.iter().zip(&robust_curve.lower).map(|(u, l)| (u - l) / 2.0).collect();
+        let mut half: Vec<f64> =
+            robust_curve.upper.iter().zip(&robust_curve.lower).map(|(u, l)| (u - l) / 2.0).collect();
         half.sort_by(|a, b| a.total_cmp(b));
         let median_half = if half.is_empty() { 0.0 } else { quantile_sorted(&half, 0.5) };
         let mv = |c: &Curve| {
