@@ -46,11 +46,7 @@ pub fn sig(v: f64, digits: usize) -> String {
     }
     let digits = digits.max(1);
     let sci = format!("{:.*e}", digits - 1, v);
-    let exp: i32 = sci
-        .rsplit('e')
-        .next()
-        .and_then(|e| e.parse().ok())
-        .unwrap_or(0);
+    let exp: i32 = sci.rsplit('e').next().and_then(|e| e.parse().ok()).unwrap_or(0);
     let s = if (-4..=6).contains(&exp) {
         let decimals = (digits as i32 - 1 - exp).max(0) as usize;
         format!("{v:.decimals$}")
@@ -97,10 +93,7 @@ pub fn sizes_text(s: &Sizes) -> String {
     if s.0.is_empty() {
         return "none (no smooth terms)".into();
     }
-    s.0.iter()
-        .map(|(k, v)| format!("{k} {v}"))
-        .collect::<Vec<_>>()
-        .join(", ")
+    s.0.iter().map(|(k, v)| format!("{k} {v}")).collect::<Vec<_>>().join(", ")
 }
 
 /// Type-7 quantile of an ascending slice (Hyndman & Fan 1996), the rule `basis::quantile_sorted` uses;
@@ -125,10 +118,7 @@ pub struct KeyValue {
 }
 
 fn kv(key: impl Into<String>, value: impl Into<String>) -> KeyValue {
-    KeyValue {
-        key: key.into(),
-        value: value.into(),
-    }
+    KeyValue { key: key.into(), value: value.into() }
 }
 
 #[derive(Debug, Clone, Serialize, Default)]
@@ -386,10 +376,7 @@ pub const SECTIONS: [&str; 11] = [
 /// carries no URL.
 pub fn notes_html(markdown: &str) -> String {
     use pulldown_cmark::{html, CowStr, Event, Options, Parser, Tag, TagEnd};
-    let parser = Parser::new_ext(
-        markdown,
-        Options::ENABLE_TABLES | Options::ENABLE_STRIKETHROUGH,
-    );
+    let parser = Parser::new_ext(markdown, Options::ENABLE_TABLES | Options::ENABLE_STRIKETHROUGH);
     let events = parser.filter_map(|ev| match ev {
         Event::Html(t) | Event::InlineHtml(t) => Some(Event::Text(t)),
         Event::Start(Tag::Link { .. }) | Event::End(TagEnd::Link) => None,
@@ -416,15 +403,8 @@ fn method_words(m: RobustMethod) -> &'static str {
 }
 
 fn ordered_warnings(w: &[String]) -> Vec<String> {
-    let mut v: Vec<(usize, String)> = w
-        .iter()
-        .map(|s| {
-            (
-                usize::from(!s.to_lowercase().contains("not converge")),
-                s.clone(),
-            )
-        })
-        .collect();
+    let mut v: Vec<(usize, String)> =
+        w.iter().map(|s| (usize::from(!s.to_lowercase().contains("not converge")), s.clone())).collect();
     v.sort_by_key(|(k, _)| *k);
     v.into_iter().map(|(_, s)| s).collect()
 }
@@ -446,17 +426,7 @@ pub fn build(a: &Analysis, r: &Results, resolved_yaml: &str) -> Result<ReportCon
             *m = true;
         }
     }
-    let scaled: Vec<f64> = rf
-        .residuals
-        .iter()
-        .map(|e| {
-            if rf.scale > 0.0 {
-                e / rf.scale
-            } else {
-                f64::NAN
-            }
-        })
-        .collect();
+    let scaled: Vec<f64> = rf.residuals.iter().map(|e| if rf.scale > 0.0 { e / rf.scale } else { f64::NAN }).collect();
 
     let robust_words = method_words(a.plan.method);
     let description = format!(
@@ -473,11 +443,7 @@ pub fn build(a: &Analysis, r: &Results, resolved_yaml: &str) -> Result<ReportCon
     let toc = SECTIONS
         .iter()
         .enumerate()
-        .map(|(i, t)| TocEntry {
-            id: format!("s{}", i + 1),
-            number: format!("{}", i + 1),
-            title: (*t).to_string(),
-        })
+        .map(|(i, t)| TocEntry { id: format!("s{}", i + 1), number: format!("{}", i + 1), title: (*t).to_string() })
         .collect();
 
     let fits_ctx = fits_section(r);
@@ -515,21 +481,9 @@ pub fn build(a: &Analysis, r: &Results, resolved_yaml: &str) -> Result<ReportCon
             osig(r.fits.robust.scale)
         ),
     ];
-    let notes = match a
-        .study
-        .report
-        .notes_markdown
-        .as_deref()
-        .filter(|s| !s.trim().is_empty())
-    {
-        Some(md) => NotesCtx {
-            html: Some(notes_html(md)),
-            none_sentence: None,
-        },
-        None => NotesCtx {
-            html: None,
-            none_sentence: Some("No notes were supplied.".into()),
-        },
+    let notes = match a.study.report.notes_markdown.as_deref().filter(|s| !s.trim().is_empty()) {
+        Some(md) => NotesCtx { html: Some(notes_html(md)), none_sentence: None },
+        None => NotesCtx { html: None, none_sentence: Some("No notes were supplied.".into()) },
     };
     Ok(ReportContext {
         title: a.study.title.clone(),
@@ -558,41 +512,15 @@ fn summary_section(a: &Analysis, r: &Results, fits: &FitsCtx) -> SummaryCtx {
         .study
         .linear
         .iter()
-        .map(|t| {
-            if t.categorical {
-                format!("{} (categorical)", t.column)
-            } else {
-                t.column.clone()
-            }
-        })
+        .map(|t| if t.categorical { format!("{} (categorical)", t.column) } else { t.column.clone() })
         .collect();
     let smooth: Vec<String> = a.study.smooth.iter().map(|t| t.column.clone()).collect();
     let fitted = vec![
         kv("Response", a.study.response.clone()),
-        kv(
-            "Linear terms",
-            if linear.is_empty() {
-                "none".into()
-            } else {
-                linear.join(", ")
-            },
-        ),
-        kv(
-            "Smooth terms",
-            if smooth.is_empty() {
-                "none".into()
-            } else {
-                smooth.join(", ")
-            },
-        ),
-        kv(
-            "Basis sizes, classical fit",
-            sizes_text(&r.fits.classical.basis_sizes),
-        ),
-        kv(
-            "Basis sizes, robust fit",
-            sizes_text(&r.fits.robust.basis_sizes),
-        ),
+        kv("Linear terms", if linear.is_empty() { "none".into() } else { linear.join(", ") }),
+        kv("Smooth terms", if smooth.is_empty() { "none".into() } else { smooth.join(", ") }),
+        kv("Basis sizes, classical fit", sizes_text(&r.fits.classical.basis_sizes)),
+        kv("Basis sizes, robust fit", sizes_text(&r.fits.robust.basis_sizes)),
     ];
     let mut findings = Vec::new();
     let dropped = r.study.dropped.len();
@@ -611,17 +539,9 @@ fn summary_section(a: &Analysis, r: &Results, fits: &FitsCtx) -> SummaryCtx {
     ));
     findings.push(fits.change_sentence.clone());
     let mut inf: Vec<&crate::results::InfluenceOut> = r.sensitivity.influence.iter().collect();
-    inf.sort_by(|x, y| {
-        y.largest
-            .unwrap_or(0.0)
-            .total_cmp(&x.largest.unwrap_or(0.0))
-            .then(x.line.cmp(&y.line))
-    });
+    inf.sort_by(|x, y| y.largest.unwrap_or(0.0).total_cmp(&x.largest.unwrap_or(0.0)).then(x.line.cmp(&y.line)));
     if inf.is_empty() {
-        findings.push(
-            "No leave-one-out influence was computed (no flagged rows, or influence turned off)."
-                .into(),
-        );
+        findings.push("No leave-one-out influence was computed (no flagged rows, or influence turned off).".into());
     } else {
         let parts: Vec<String> = inf
             .iter()
@@ -631,20 +551,11 @@ fn summary_section(a: &Analysis, r: &Results, fits: &FitsCtx) -> SummaryCtx {
                     .dfbetas
                     .iter()
                     .filter(|v| v.value.is_some())
-                    .max_by(|x, y| {
-                        x.value
-                            .unwrap_or(0.0)
-                            .abs()
-                            .total_cmp(&y.value.unwrap_or(0.0).abs())
-                    });
+                    .max_by(|x, y| x.value.unwrap_or(0.0).abs().total_cmp(&y.value.unwrap_or(0.0).abs()));
                 match top {
-                    Some(t) => format!(
-                        "row {} (line {}): |DFBETAS| {} on {}",
-                        i.row,
-                        i.line,
-                        ofixed(i.largest, 2),
-                        t.name
-                    ),
+                    Some(t) => {
+                        format!("row {} (line {}): |DFBETAS| {} on {}", i.row, i.line, ofixed(i.largest, 2), t.name)
+                    }
                     None => format!("row {} (line {})", i.row, i.line),
                 }
             })
@@ -683,11 +594,7 @@ fn data_section(a: &Analysis, r: &Results) -> DataCtx {
         .collect();
     let dropped_more = (r.study.dropped.len() > MAX_DROPPED_LISTED)
         .then(|| format!("and {} more.", r.study.dropped.len() - MAX_DROPPED_LISTED));
-    let dropped_none = r
-        .study
-        .dropped
-        .is_empty()
-        .then(|| "No rows were dropped.".to_string());
+    let dropped_none = r.study.dropped.is_empty().then(|| "No rows were dropped.".to_string());
     let role = |name: &str| -> String {
         if name == a.study.response {
             "response".into()
@@ -721,12 +628,7 @@ fn data_section(a: &Analysis, r: &Results) -> DataCtx {
                     max: q(1.0),
                 });
             }
-            ColumnData::Categorical {
-                levels,
-                reference,
-                counts,
-                ..
-            } => {
+            ColumnData::Categorical { levels, reference, counts, .. } => {
                 categorical.push(CategoricalSummary {
                     column: c.name.clone(),
                     role: role(&c.name),
@@ -736,11 +638,7 @@ fn data_section(a: &Analysis, r: &Results) -> DataCtx {
                         .map(|(i, l)| LevelCount {
                             level: l.clone(),
                             count: counts.get(i).copied().unwrap_or(0).to_string(),
-                            note: if i == *reference {
-                                "reference".into()
-                            } else {
-                                String::new()
-                            },
+                            note: if i == *reference { "reference".into() } else { String::new() },
                         })
                         .collect(),
                 });
@@ -754,28 +652,17 @@ fn data_section(a: &Analysis, r: &Results) -> DataCtx {
         dropped_none,
         numeric,
         categorical,
-        missing: r
-            .study
-            .missing_per_column
-            .iter()
-            .map(|m| kv(m.column.clone(), m.rows.to_string()))
-            .collect(),
+        missing: r.study.missing_per_column.iter().map(|m| kv(m.column.clone(), m.rows.to_string())).collect(),
         warnings: a.frame.warnings.clone(),
     }
 }
 
 fn model_section(a: &Analysis, resolved_yaml: &str) -> ModelCtx {
-    let mut terms = vec![TermRow {
-        term: a.study.response.clone(),
-        role: "response".into(),
-        detail: String::new(),
-    }];
+    let mut terms = vec![TermRow { term: a.study.response.clone(), role: "response".into(), detail: String::new() }];
     for t in &a.study.linear {
         let detail = if t.categorical {
             let levels = match a.frame.column(&t.column).map(|c| &c.data) {
-                Some(ColumnData::Categorical {
-                    levels, reference, ..
-                }) => {
+                Some(ColumnData::Categorical { levels, reference, .. }) => {
                     format!(
                         "reference level {}; {}",
                         levels.get(*reference).cloned().unwrap_or_default(),
@@ -788,21 +675,11 @@ fn model_section(a: &Analysis, resolved_yaml: &str) -> ModelCtx {
         } else {
             "numeric".into()
         };
-        terms.push(TermRow {
-            term: t.column.clone(),
-            role: "linear".into(),
-            detail,
-        });
+        terms.push(TermRow { term: t.column.clone(), role: "linear".into(), detail });
     }
     for s in &a.study.smooth {
         let grid = match &s.basis_sizes {
-            Some(g) => format!(
-                "own grid {}",
-                g.iter()
-                    .map(|k| k.to_string())
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            ),
+            Some(g) => format!("own grid {}", g.iter().map(|k| k.to_string()).collect::<Vec<_>>().join(", ")),
             None => "shared grid".into(),
         };
         let knots = match s.knots {
@@ -812,64 +689,38 @@ fn model_section(a: &Analysis, resolved_yaml: &str) -> ModelCtx {
         terms.push(TermRow {
             term: s.column.clone(),
             role: "smooth".into(),
-            detail: format!(
-                "B-spline of degree {}, {knots}; {grid}; centred, k − 1 columns",
-                s.degree
-            ),
+            detail: format!("B-spline of degree {}, {knots}; {grid}; centred, k − 1 columns", s.degree),
         });
     }
     let mut knots = Vec::new();
-    for (fit, d) in [
-        ("classical", &a.selection.classical_design),
-        ("robust", &a.selection.robust_design),
-    ] {
+    for (fit, d) in [("classical", &a.selection.classical_design), ("robust", &a.selection.robust_design)] {
         for enc in &d.smooth {
             let kn = &enc.basis.knots;
             let deg = enc.basis.degree;
             let interior: Vec<String> = if kn.len() > 2 * (deg + 1) {
-                kn[deg + 1..kn.len() - deg - 1]
-                    .iter()
-                    .map(|v| sig(*v, 4))
-                    .collect()
+                kn[deg + 1..kn.len() - deg - 1].iter().map(|v| sig(*v, 4)).collect()
             } else {
                 vec![]
             };
-            let (lo, hi) = (
-                kn.first().copied().unwrap_or(f64::NAN),
-                kn.last().copied().unwrap_or(f64::NAN),
-            );
+            let (lo, hi) = (kn.first().copied().unwrap_or(f64::NAN), kn.last().copied().unwrap_or(f64::NAN));
             knots.push(KnotRow {
                 column: enc.column.clone(),
                 fit: fit.into(),
                 size: enc.basis.size().to_string(),
                 boundary: format!("{} and {}", sig(lo, 4), sig(hi, 4)),
-                interior: if interior.is_empty() {
-                    "none".into()
-                } else {
-                    interior.join(", ")
-                },
+                interior: if interior.is_empty() { "none".into() } else { interior.join(", ") },
             });
         }
     }
-    let knots_none = knots
-        .is_empty()
-        .then(|| "There are no smooth terms, so there are no knots.".to_string());
-    ModelCtx {
-        terms,
-        knots,
-        knots_none,
-        resolved_yaml: resolved_yaml.to_string(),
-    }
+    let knots_none = knots.is_empty().then(|| "There are no smooth terms, so there are no knots.".to_string());
+    ModelCtx { terms, knots, knots_none, resolved_yaml: resolved_yaml.to_string() }
 }
 
 fn selection_section(a: &Analysis, r: &Results) -> Result<SelectionCtx, Error> {
     let m = &r.selection_method;
     let method = vec![
         kv("Search", a.selection.search.describe().to_string()),
-        kv(
-            "Penalty γ (multiplier of p·log(n)/n)",
-            sig(m.bic_penalty, 4),
-        ),
+        kv("Penalty γ (multiplier of p·log(n)/n)", sig(m.bic_penalty, 4)),
         kv("Robust scale mode", m.robust_scale.clone()),
         kv(
             "Shared robust scale",
@@ -894,20 +745,12 @@ fn selection_section(a: &Analysis, r: &Results) -> Result<SelectionCtx, Error> {
             p: p.p.to_string(),
             bic: ofixed(p.bic, 4),
             rbic: ofixed(p.rbic, 4),
-            chosen: p
-                .chosen_by
-                .iter()
-                .map(|w| format!("◆ chosen ({w})"))
-                .collect::<Vec<_>>()
-                .join(" "),
+            chosen: p.chosen_by.iter().map(|w| format!("◆ chosen ({w})")).collect::<Vec<_>>().join(" "),
             skipped: p.skipped.clone().unwrap_or_default(),
         })
         .collect();
     let mut sentences = Vec::new();
-    for (who, edge) in [
-        ("classical", &m.classical_at_edge),
-        ("robust", &m.robust_at_edge),
-    ] {
+    for (who, edge) in [("classical", &m.classical_at_edge), ("robust", &m.robust_at_edge)] {
         if !edge.is_empty() {
             sentences.push(format!(
                 "The {who} choice sits at the edge of the grid for {}; a wider grid may choose differently.",
@@ -916,43 +759,22 @@ fn selection_section(a: &Analysis, r: &Results) -> Result<SelectionCtx, Error> {
         }
     }
     let (figure, no_figure) = if r.selection.len() < 2 {
-        (
-            None,
-            Some(
-                "Only one grid point: there is nothing to compare, so no criterion plot is drawn."
-                    .to_string(),
-            ),
-        )
+        (None, Some("Only one grid point: there is nothing to compare, so no criterion plot is drawn.".to_string()))
     } else {
         (Some(criteria_figure(r)?), None)
     };
-    Ok(SelectionCtx {
-        method,
-        term_names,
-        points,
-        figure,
-        no_figure,
-        sentences,
-    })
+    Ok(SelectionCtx { method, term_names, points, figure, no_figure, sentences })
 }
 
 fn criteria_figure(r: &Results) -> Result<Figure, Error> {
     let rel = |vals: Vec<Option<f64>>| -> Vec<(f64, f64)> {
         let min = vals.iter().flatten().copied().fold(f64::INFINITY, f64::min);
-        vals.iter()
-            .enumerate()
-            .map(|(i, v)| ((i + 1) as f64, v.map_or(f64::NAN, |v| v - min)))
-            .collect()
+        vals.iter().enumerate().map(|(i, v)| ((i + 1) as f64, v.map_or(f64::NAN, |v| v - min))).collect()
     };
     let bic = rel(r.selection.iter().map(|p| p.bic).collect());
     let rbic = rel(r.selection.iter().map(|p| p.rbic).collect());
     let pick = |who: &str, pts: &[(f64, f64)]| -> Vec<(f64, f64)> {
-        r.selection
-            .iter()
-            .zip(pts)
-            .filter(|(p, _)| p.chosen_by.contains(&who))
-            .map(|(_, q)| *q)
-            .collect()
+        r.selection.iter().zip(pts).filter(|(p, _)| p.chosen_by.contains(&who)).map(|(_, q)| *q).collect()
     };
     let chosen_c = pick("classical", &bic);
     let chosen_r = pick("robust", &rbic);
@@ -970,60 +792,32 @@ fn criteria_figure(r: &Results) -> Result<Figure, Error> {
         y_label: "criterion minus its minimum".into(),
         layers: vec![
             Layer {
-                kind: LayerKind::Line {
-                    points: bic.clone(),
-                    dashed: false,
-                    width: 2,
-                },
+                kind: LayerKind::Line { points: bic.clone(), dashed: false, width: 2 },
                 ink: Ink::Classical,
                 label: "BIC (classical)".into(),
             },
             Layer {
-                kind: LayerKind::Points {
-                    points: bic,
-                    shape: Shape::Dot,
-                    size: 3,
-                    opacity: 1.0,
-                },
+                kind: LayerKind::Points { points: bic, shape: Shape::Dot, size: 3, opacity: 1.0 },
                 ink: Ink::Classical,
                 label: String::new(),
             },
             Layer {
-                kind: LayerKind::Line {
-                    points: rbic.clone(),
-                    dashed: true,
-                    width: 2,
-                },
+                kind: LayerKind::Line { points: rbic.clone(), dashed: true, width: 2 },
                 ink: Ink::Robust,
                 label: "RBIC (robust)".into(),
             },
             Layer {
-                kind: LayerKind::Points {
-                    points: rbic,
-                    shape: Shape::Ring,
-                    size: 3,
-                    opacity: 1.0,
-                },
+                kind: LayerKind::Points { points: rbic, shape: Shape::Ring, size: 3, opacity: 1.0 },
                 ink: Ink::Robust,
                 label: String::new(),
             },
             Layer {
-                kind: LayerKind::Points {
-                    points: chosen_c,
-                    shape: Shape::Triangle,
-                    size: 8,
-                    opacity: 1.0,
-                },
+                kind: LayerKind::Points { points: chosen_c, shape: Shape::Triangle, size: 8, opacity: 1.0 },
                 ink: Ink::Classical,
                 label: "chosen (classical)".into(),
             },
             Layer {
-                kind: LayerKind::Points {
-                    points: chosen_r,
-                    shape: Shape::Square,
-                    size: 6,
-                    opacity: 1.0,
-                },
+                kind: LayerKind::Points { points: chosen_r, shape: Shape::Square, size: 6, opacity: 1.0 },
                 ink: Ink::Robust,
                 label: "chosen (robust)".into(),
             },
@@ -1038,10 +832,7 @@ fn fits_section(r: &Results) -> FitsCtx {
     let fits: Vec<(&str, Option<&FitOut>)> = vec![
         ("Classical (all rows)", Some(&r.fits.classical)),
         ("Robust (all rows)", Some(&r.fits.robust)),
-        (
-            "Classical without flagged rows",
-            r.fits.classical_without_flagged.as_ref(),
-        ),
+        ("Classical without flagged rows", r.fits.classical_without_flagged.as_ref()),
     ];
     let fit_names = fits.iter().map(|(n, _)| (*n).to_string()).collect();
     let coefficients: Vec<CoefRow> = r
@@ -1057,11 +848,7 @@ fn fits_section(r: &Results) -> FitsCtx {
                         std_error: osig(co.std_error),
                         interval: format!("{} to {}", osig(co.lower), osig(co.upper)),
                     },
-                    None => CoefCell {
-                        estimate: DASH.into(),
-                        std_error: DASH.into(),
-                        interval: DASH.into(),
-                    },
+                    None => CoefCell { estimate: DASH.into(), std_error: DASH.into(), interval: DASH.into() },
                 })
                 .collect();
             let mut marks = Vec::new();
@@ -1071,11 +858,7 @@ fn fits_section(r: &Results) -> FitsCtx {
             if c.significance_changes {
                 marks.push("● significance changes");
             }
-            CoefRow {
-                name: c.name.clone(),
-                cells,
-                marker: marks.join(" "),
-            }
+            CoefRow { name: c.name.clone(), cells, marker: marks.join(" ") }
         })
         .collect();
     let changed: Vec<String> = r
@@ -1095,14 +878,9 @@ fn fits_section(r: &Results) -> FitsCtx {
     let change_sentence = if changed.is_empty() {
         "No linear effect changes sign or significance (95% interval excluding zero) across the three fits.".to_string()
     } else {
-        format!(
-            "The conclusion changes across the three fits for: {}.",
-            changed.join(", ")
-        )
+        format!("The conclusion changes across the three fits for: {}.", changed.join(", "))
     };
-    let no_coefficients = coefficients
-        .is_empty()
-        .then(|| "The model has no linear coefficients.".to_string());
+    let no_coefficients = coefficients.is_empty().then(|| "The model has no linear coefficients.".to_string());
     let mut summary = Vec::new();
     for (name, f) in &fits {
         if let Some(f) = f {
@@ -1129,23 +907,16 @@ fn fits_section(r: &Results) -> FitsCtx {
                 kv("S-scale", osig(s.s_scale)),
                 kv("S-estimate basis sizes", sizes_text(&s.s_basis_sizes)),
                 kv("Random subsamples drawn", s.subsamples.to_string()),
-                kv(
-                    "Singular subsamples redrawn",
-                    s.singular_redraws.to_string(),
-                ),
+                kv("Singular subsamples redrawn", s.singular_redraws.to_string()),
                 kv("Rows in the search", s.search_rows.to_string()),
                 kv("Seed", s.seed.to_string()),
                 kv("S-estimate iteration", s.termination.describe()),
             ],
             None,
         ),
-        None => (
-            Vec::new(),
-            Some(
-                "The robust fit started from least squares; no S-estimate was computed."
-                    .to_string(),
-            ),
-        ),
+        None => {
+            (Vec::new(), Some("The robust fit started from least squares; no S-estimate was computed.".to_string()))
+        }
     };
     FitsCtx {
         fit_names,
@@ -1184,20 +955,12 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
         }
         let mut sorted: Vec<f64> = x.iter().copied().filter(|v| v.is_finite()).collect();
         sorted.sort_by(|p, q| p.total_cmp(q));
-        let rug: Vec<f64> = plots::thin(sorted.len(), MAX_RUG, &[])
-            .into_iter()
-            .map(|i| sorted[i])
-            .collect();
+        let rug: Vec<f64> = plots::thin(sorted.len(), MAX_RUG, &[]).into_iter().map(|i| sorted[i]).collect();
         let curve_of = |f: Option<&FitOut>| {
-            f.and_then(|f| f.smooth.iter().find(|s| s.column == column))
-                .map(|s| {
-                    let v = |o: &Vec<Option<f64>>| {
-                        o.iter()
-                            .map(|v| v.unwrap_or(f64::NAN))
-                            .collect::<Vec<f64>>()
-                    };
-                    (s.grid.clone(), v(&s.curve), v(&s.lower), v(&s.upper))
-                })
+            f.and_then(|f| f.smooth.iter().find(|s| s.column == column)).map(|s| {
+                let v = |o: &Vec<Option<f64>>| o.iter().map(|v| v.unwrap_or(f64::NAN)).collect::<Vec<f64>>();
+                (s.grid.clone(), v(&s.curve), v(&s.lower), v(&s.upper))
+            })
         };
         let robust = curve_of(Some(&r.fits.robust));
         let classical = curve_of(Some(&r.fits.classical));
@@ -1205,74 +968,44 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
         let mut layers = Vec::new();
         if let Some((g, _, lo, hi)) = &robust {
             layers.push(Layer {
-                kind: LayerKind::Band {
-                    x: g.clone(),
-                    lower: lo.clone(),
-                    upper: hi.clone(),
-                    opacity: 0.2,
-                },
+                kind: LayerKind::Band { x: g.clone(), lower: lo.clone(), upper: hi.clone(), opacity: 0.2 },
                 ink: Ink::Robust,
                 label: "robust 95% pointwise band".into(),
             });
         }
         layers.push(Layer {
-            kind: LayerKind::Points {
-                points: pts,
-                shape: Shape::Dot,
-                size: 2,
-                opacity: 0.4,
-            },
+            kind: LayerKind::Points { points: pts, shape: Shape::Dot, size: 2, opacity: 0.4 },
             ink: Ink::Robust,
             label: "robust partial residual".into(),
         });
         let n_flag_shown = fl.len();
         if !fl.is_empty() {
             layers.push(Layer {
-                kind: LayerKind::Points {
-                    points: fl,
-                    shape: Shape::Cross,
-                    size: 4,
-                    opacity: 1.0,
-                },
+                kind: LayerKind::Points { points: fl, shape: Shape::Cross, size: 4, opacity: 1.0 },
                 ink: Ink::Flag,
                 label: "flagged row".into(),
             });
         }
         let line = |c: &(Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>)| {
-            c.0.iter()
-                .copied()
-                .zip(c.1.iter().copied())
-                .collect::<Vec<_>>()
+            c.0.iter().copied().zip(c.1.iter().copied()).collect::<Vec<_>>()
         };
         if let Some(c) = &classical {
             layers.push(Layer {
-                kind: LayerKind::Line {
-                    points: line(c),
-                    dashed: false,
-                    width: 2,
-                },
+                kind: LayerKind::Line { points: line(c), dashed: false, width: 2 },
                 ink: Ink::Classical,
                 label: "classical curve".into(),
             });
         }
         if let Some(c) = &without {
             layers.push(Layer {
-                kind: LayerKind::Line {
-                    points: line(c),
-                    dashed: true,
-                    width: 2,
-                },
+                kind: LayerKind::Line { points: line(c), dashed: true, width: 2 },
                 ink: Ink::Without,
                 label: "classical without flagged rows".into(),
             });
         }
         if let Some(c) = &robust {
             layers.push(Layer {
-                kind: LayerKind::Line {
-                    points: line(c),
-                    dashed: false,
-                    width: 3,
-                },
+                kind: LayerKind::Line { points: line(c), dashed: false, width: 3 },
                 ink: Ink::Robust,
                 label: "robust curve".into(),
             });
@@ -1282,19 +1015,12 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
             ink: Ink::Text,
             label: "data x values (rug)".into(),
         });
-        let (xmin, xmax) = (
-            sorted.first().copied().unwrap_or(f64::NAN),
-            sorted.last().copied().unwrap_or(f64::NAN),
-        );
+        let (xmin, xmax) = (sorted.first().copied().unwrap_or(f64::NAN), sorted.last().copied().unwrap_or(f64::NAN));
         let curve_range = robust.as_ref().map_or(String::new(), |c| {
             let f: Vec<f64> = c.1.iter().copied().filter(|v| v.is_finite()).collect();
             let lo = f.iter().copied().fold(f64::INFINITY, f64::min);
             let hi = f.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-            format!(
-                " The robust curve runs from {} to {}.",
-                sig(lo, 4),
-                sig(hi, 4)
-            )
+            format!(" The robust curve runs from {} to {}.", sig(lo, 4), sig(hi, 4))
         });
         let desc = format!(
             "Robust curve of {column} over {} to {} with its pointwise 95% band, the classical curve{}; {} of {n} robust partial residuals shown ({}, all flagged rows kept); {} marked with crosses; a rug of {} x values.{curve_range}",
@@ -1331,16 +1057,9 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
                 None => moves.push("No classical refit without flagged rows was made, so there is no third curve.".into()),
             }
         }
-        terms.push(SmoothTermCtx {
-            number,
-            column,
-            figure,
-            moves,
-        });
+        terms.push(SmoothTermCtx { number, column, figure, moves });
     }
-    let none = terms
-        .is_empty()
-        .then(|| "The model has no smooth terms.".to_string());
+    let none = terms.is_empty().then(|| "The model has no smooth terms.".to_string());
     Ok(SmoothCtx {
         terms,
         none,
@@ -1348,23 +1067,15 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
     })
 }
 
-fn diagnostics_section(
-    a: &Analysis,
-    r: &Results,
-    scaled: &[f64],
-    flagged: &[bool],
-) -> Result<DiagnosticsCtx, Error> {
+fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[bool]) -> Result<DiagnosticsCtx, Error> {
     let rf = &a.selection.robust_fit;
     let n = scaled.len();
     let cutoff = r.outliers.cutoff;
     let cut_label = format!("±cutoff {}", sig(cutoff, 4));
     let shown = plots::thin(n, MAX_POINTS, flagged);
     let k = n.div_ceil(MAX_POINTS).max(1);
-    let thin_words = if k == 1 {
-        "all rows shown".to_string()
-    } else {
-        format!("every {k}th row shown and all flagged rows")
-    };
+    let thin_words =
+        if k == 1 { "all rows shown".to_string() } else { format!("every {k}th row shown and all flagged rows") };
     let n_flagged = flagged.iter().filter(|f| **f).count();
     let split = |f: &dyn Fn(usize) -> (f64, f64)| {
         let mut a = Vec::new();
@@ -1380,23 +1091,13 @@ fn diagnostics_section(
     };
     let points_layers = |a: Vec<(f64, f64)>, b: Vec<(f64, f64)>, label: &str| {
         let mut v = vec![Layer {
-            kind: LayerKind::Points {
-                points: a,
-                shape: Shape::Dot,
-                size: 2,
-                opacity: 0.45,
-            },
+            kind: LayerKind::Points { points: a, shape: Shape::Dot, size: 2, opacity: 0.45 },
             ink: Ink::Robust,
             label: label.to_string(),
         }];
         if !b.is_empty() {
             v.push(Layer {
-                kind: LayerKind::Points {
-                    points: b,
-                    shape: Shape::Cross,
-                    size: 4,
-                    opacity: 1.0,
-                },
+                kind: LayerKind::Points { points: b, shape: Shape::Cross, size: 4, opacity: 1.0 },
                 ink: Ink::Flag,
                 label: "flagged row".into(),
             });
@@ -1409,10 +1110,7 @@ fn diagnostics_section(
     let (p, f) = split(&|i| (rf.fitted[i], scaled[i]));
     let mut layers = points_layers(p, f, "row");
     layers.push(Layer {
-        kind: LayerKind::HLines {
-            ys: vec![-cutoff, cutoff],
-            dashed: true,
-        },
+        kind: LayerKind::HLines { ys: vec![-cutoff, cutoff], dashed: true },
         ink: Ink::Reference,
         label: cut_label.clone(),
     });
@@ -1435,9 +1133,8 @@ fn diagnostics_section(
     let mut order: Vec<usize> = (0..n).filter(|&i| scaled[i].is_finite()).collect();
     order.sort_by(|&x, &y| scaled[x].total_cmp(&scaled[y]).then(x.cmp(&y)));
     let m = order.len();
-    let keep_sorted: Vec<bool> = (0..m)
-        .map(|j| j < 25 || j + 25 >= m || flagged.get(order[j]).copied().unwrap_or(false))
-        .collect();
+    let keep_sorted: Vec<bool> =
+        (0..m).map(|j| j < 25 || j + 25 >= m || flagged.get(order[j]).copied().unwrap_or(false)).collect();
     let q_idx = plots::thin(m, MAX_POINTS, &keep_sorted);
     let mut qp = Vec::new();
     let mut qf = Vec::new();
@@ -1458,11 +1155,7 @@ fn diagnostics_section(
         layers.insert(
             0,
             Layer {
-                kind: LayerKind::Line {
-                    points: vec![(lo, lo), (hi, hi)],
-                    dashed: true,
-                    width: 1,
-                },
+                kind: LayerKind::Line { points: vec![(lo, lo), (hi, hi)], dashed: true, width: 1 },
                 ink: Ink::Reference,
                 label: "y = x (normal reference)".into(),
             },
@@ -1484,21 +1177,11 @@ fn diagnostics_section(
 
     // 7.3 horizontal boxplot with Tukey fences.
     let b = &r.outliers.boxplot;
-    if let (Some(q1), Some(med), Some(q3), Some(lf), Some(uf)) =
-        (b.q1, b.median, b.q3, b.lower_fence, b.upper_fence)
-    {
-        let inside: Vec<f64> = scaled
-            .iter()
-            .copied()
-            .filter(|v| v.is_finite() && *v >= lf && *v <= uf)
-            .collect();
+    if let (Some(q1), Some(med), Some(q3), Some(lf), Some(uf)) = (b.q1, b.median, b.q3, b.lower_fence, b.upper_fence) {
+        let inside: Vec<f64> = scaled.iter().copied().filter(|v| v.is_finite() && *v >= lf && *v <= uf).collect();
         let wlo = inside.iter().copied().fold(q1, f64::min);
         let whi = inside.iter().copied().fold(q3, f64::max);
-        let outside: Vec<f64> = scaled
-            .iter()
-            .copied()
-            .filter(|v| v.is_finite() && (*v < lf || *v > uf))
-            .collect();
+        let outside: Vec<f64> = scaled.iter().copied().filter(|v| v.is_finite() && (*v < lf || *v > uf)).collect();
         let out_idx = plots::thin(outside.len(), 600, &[]);
         let out_pts: Vec<(f64, f64)> = out_idx.iter().map(|&i| (outside[i], 0.5)).collect();
         let (y0, y1) = (0.3, 0.7);
@@ -1514,38 +1197,24 @@ fn diagnostics_section(
         ];
         let mut layers = vec![
             Layer {
-                kind: LayerKind::Segments {
-                    segments: segs,
-                    width: 2,
-                },
+                kind: LayerKind::Segments { segments: segs, width: 2 },
                 ink: Ink::Robust,
                 label: "quartile box and whiskers".into(),
             },
             Layer {
-                kind: LayerKind::Segments {
-                    segments: vec![((med, y0), (med, y1))],
-                    width: 3,
-                },
+                kind: LayerKind::Segments { segments: vec![((med, y0), (med, y1))], width: 3 },
                 ink: Ink::Classical,
                 label: "median".into(),
             },
             Layer {
-                kind: LayerKind::VLines {
-                    xs: vec![lf, uf],
-                    dashed: true,
-                },
+                kind: LayerKind::VLines { xs: vec![lf, uf], dashed: true },
                 ink: Ink::Reference,
                 label: "Tukey fences (1.5 IQR)".into(),
             },
         ];
         if !out_pts.is_empty() {
             layers.push(Layer {
-                kind: LayerKind::Points {
-                    points: out_pts,
-                    shape: Shape::Ring,
-                    size: 3,
-                    opacity: 1.0,
-                },
+                kind: LayerKind::Points { points: out_pts, shape: Shape::Ring, size: 3, opacity: 1.0 },
                 ink: Ink::Flag,
                 label: "row outside the fences".into(),
             });
@@ -1586,13 +1255,7 @@ fn diagnostics_section(
             let bars: Vec<(f64, f64, f64)> = counts
                 .iter()
                 .enumerate()
-                .map(|(j, c)| {
-                    (
-                        j as f64 / bins as f64,
-                        (j + 1) as f64 / bins as f64,
-                        *c as f64,
-                    )
-                })
+                .map(|(j, c)| (j as f64 / bins as f64, (j + 1) as f64 / bins as f64, *c as f64))
                 .collect();
             let below_half = w.iter().filter(|v| **v < 0.5).count();
             let zero = w.iter().filter(|v| **v == 0.0).count();
@@ -1612,16 +1275,14 @@ fn diagnostics_section(
                 y_include: vec![0.0],
             })?);
         }
-        _ => sentences
-            .push("The robust fit reports no weights, so no weight histogram is drawn.".into()),
+        _ => sentences.push("The robust fit reports no weights, so no weight histogram is drawn.".into()),
     }
 
     // 7.5 scaled residual against leverage.
     let hat = &a.sensitivity.leverage.hat;
     let thr = a.sensitivity.leverage.threshold;
-    let keep: Vec<bool> = (0..n)
-        .map(|i| flagged.get(i).copied().unwrap_or(false) || hat.get(i).is_some_and(|h| *h > thr))
-        .collect();
+    let keep: Vec<bool> =
+        (0..n).map(|i| flagged.get(i).copied().unwrap_or(false) || hat.get(i).is_some_and(|h| *h > thr)).collect();
     let lev_idx = plots::thin(n.min(hat.len()), MAX_POINTS, &keep);
     let mut lp = Vec::new();
     let mut lf = Vec::new();
@@ -1635,18 +1296,12 @@ fn diagnostics_section(
     }
     let mut layers = points_layers(lp, lf, "row");
     layers.push(Layer {
-        kind: LayerKind::VLines {
-            xs: vec![thr],
-            dashed: true,
-        },
+        kind: LayerKind::VLines { xs: vec![thr], dashed: true },
         ink: Ink::Classical,
         label: format!("2p/n = {}", fixed(thr, 3)),
     });
     layers.push(Layer {
-        kind: LayerKind::HLines {
-            ys: vec![-cutoff, cutoff],
-            dashed: true,
-        },
+        kind: LayerKind::HLines { ys: vec![-cutoff, cutoff], dashed: true },
         ink: Ink::Reference,
         label: cut_label,
     });
@@ -1723,10 +1378,7 @@ fn outliers_section(r: &Results) -> OutliersCtx {
         b.quartiles
     )];
     let leverage_sentence = if o.high_leverage.is_empty() {
-        format!(
-            "No row has leverage above 2p/n = {}.",
-            fixed(o.leverage_threshold, 3)
-        )
+        format!("No row has leverage above 2p/n = {}.", fixed(o.leverage_threshold, 3))
     } else {
         format!(
             "{} leverage above 2p/n = {} (robust design). High leverage is flagged separately from large residuals.",
@@ -1738,14 +1390,13 @@ fn outliers_section(r: &Results) -> OutliersCtx {
         .high_leverage
         .iter()
         .take(MAX_LEVERAGE_LISTED)
-        .map(|l| LeverageRow {
-            row: l.row.clone(),
-            line: l.line.to_string(),
-            leverage: ofixed(l.leverage, 3),
-        })
+        .map(|l| LeverageRow { row: l.row.clone(), line: l.line.to_string(), leverage: ofixed(l.leverage, 3) })
         .collect();
     let leverage_cap = (o.high_leverage.len() > MAX_LEVERAGE_LISTED).then(|| {
-        format!("Only the first {MAX_LEVERAGE_LISTED} of {} high-leverage rows are listed; rows.csv has every hat value.", o.high_leverage.len())
+        format!(
+            "Only the first {MAX_LEVERAGE_LISTED} of {} high-leverage rows are listed; rows.csv has every hat value.",
+            o.high_leverage.len()
+        )
     });
     let s = &r.sensitivity;
     let mut rerun = Vec::new();
@@ -1768,11 +1419,8 @@ fn outliers_section(r: &Results) -> OutliersCtx {
             None => rerun.push("The robust model was not refitted without the flagged rows.".into()),
         }
     }
-    let influence_names: Vec<String> = s
-        .influence
-        .first()
-        .map(|i| i.dfbetas.iter().map(|d| d.name.clone()).collect())
-        .unwrap_or_default();
+    let influence_names: Vec<String> =
+        s.influence.first().map(|i| i.dfbetas.iter().map(|d| d.name.clone()).collect()).unwrap_or_default();
     let influence = s
         .influence
         .iter()
@@ -1793,7 +1441,11 @@ fn outliers_section(r: &Results) -> OutliersCtx {
         "DFBETAS of each linear coefficient in the classical fit when one flagged row alone is left out (the change in standard errors of the leave-one-out fit; |DFBETAS| above 2/√n is often taken as notable).".into()
     };
     let influence_cap = s.influence_capped.then(|| {
-        format!("Influence was computed for the {} flagged rows with the largest |scaled residual| only (cap {}).", s.influence.len(), crate::sensitivity::MAX_INFLUENCE_ROWS)
+        format!(
+            "Influence was computed for the {} flagged rows with the largest |scaled residual| only (cap {}).",
+            s.influence.len(),
+            crate::sensitivity::MAX_INFLUENCE_ROWS
+        )
     });
     OutliersCtx {
         flagged_sentence,
@@ -1829,7 +1481,8 @@ mod tests {
 
     #[test]
     fn notes_escape_raw_html_and_drop_urls() {
-        let h = notes_html("Hello <b>html</b>\n\n<script>alert(1)</script>\n\n[site](https://example.org) ![pic](x.png)");
+        let h =
+            notes_html("Hello <b>html</b>\n\n<script>alert(1)</script>\n\n[site](https://example.org) ![pic](x.png)");
         assert!(!h.contains("<b>"), "{h}");
         assert!(!h.contains("<script"), "{h}");
         assert!(h.contains("&lt;b&gt;html&lt;/b&gt;"), "{h}");

@@ -14,9 +14,7 @@
 //! Text drawn by plotters (axis descriptions, captions, legend labels) is escaped by plotters' SVG
 //! backend (`<`, `>`, `&`, `"`, `'`); the tests check this with a hostile column name.
 
-use plotters::element::{
-    Circle, Cross, EmptyElement, PathElement, Polygon, Rectangle, TriangleMarker,
-};
+use plotters::element::{Circle, Cross, EmptyElement, PathElement, Polygon, Rectangle, TriangleMarker};
 use plotters::prelude::*;
 
 use crate::error::Error;
@@ -103,11 +101,19 @@ pub enum LayerKind {
         opacity: f64,
     },
     /// Horizontal reference lines across the whole x range.
-    HLines { ys: Vec<f64>, dashed: bool },
+    HLines {
+        ys: Vec<f64>,
+        dashed: bool,
+    },
     /// Vertical reference lines across the whole y range.
-    VLines { xs: Vec<f64>, dashed: bool },
+    VLines {
+        xs: Vec<f64>,
+        dashed: bool,
+    },
     /// Short ticks along the bottom of the plot at these x values.
-    Rug { xs: Vec<f64> },
+    Rug {
+        xs: Vec<f64>,
+    },
     /// Bars (x0, x1, height) from zero.
     Bars {
         bars: Vec<(f64, f64, f64)>,
@@ -183,9 +189,7 @@ pub fn escape(s: &str) -> String {
 
 /// Labels handed to plotters: control characters removed (plotters escapes markup characters itself).
 fn clean_label(s: &str) -> String {
-    s.chars()
-        .map(|c| if c.is_control() { ' ' } else { c })
-        .collect()
+    s.chars().map(|c| if c.is_control() { ' ' } else { c }).collect()
 }
 
 /// Tick label: up to 4 significant digits, trailing zeros trimmed, no exponent for ordinary magnitudes.
@@ -222,9 +226,7 @@ fn ranges(spec: &ChartSpec) -> ((f64, f64), (f64, f64)) {
                     ys.push(p.1);
                 }
             }
-            LayerKind::Band {
-                x, lower, upper, ..
-            } => {
+            LayerKind::Band { x, lower, upper, .. } => {
                 for ((a, lo), hi) in x.iter().zip(lower).zip(upper) {
                     if a.is_finite() && lo.is_finite() && hi.is_finite() {
                         xs.push(*a);
@@ -315,12 +317,7 @@ pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
             let color = layer.ink.rgb();
             let label = clean_label(&layer.label);
             match &layer.kind {
-                LayerKind::Points {
-                    points,
-                    shape,
-                    size,
-                    opacity,
-                } => {
+                LayerKind::Points { points, shape, size, opacity } => {
                     let pts: Vec<(f64, f64)> = points.iter().copied().filter(finite_pair).collect();
                     let s = *size;
                     let c = color.mix(*opacity);
@@ -329,57 +326,41 @@ pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
                     // One arm per shape: each element type is concrete, so no boxed legend element.
                     macro_rules! series {
                         ($make:expr, $legend:expr) => {{
-                            let ann = chart
-                                .draw_series(pts.iter().map($make))
-                                .map_err(draw_error)?;
+                            let ann = chart.draw_series(pts.iter().map($make)).map_err(draw_error)?;
                             if !label.is_empty() {
                                 ann.label(label.clone()).legend($legend);
                             }
                         }};
                     }
                     match shape {
-                        Shape::Dot => series!(
-                            |p: &(f64, f64)| Circle::new(*p, s, c.filled()),
-                            move |(x, y)| {
-                                Circle::new((x + 10, y), legend_size as u32, color.filled())
-                            }
-                        ),
-                        Shape::Ring => series!(
-                            |p: &(f64, f64)| Circle::new(*p, s, c.stroke_width(1)),
-                            move |(x, y)| {
+                        Shape::Dot => series!(|p: &(f64, f64)| Circle::new(*p, s, c.filled()), move |(x, y)| {
+                            Circle::new((x + 10, y), legend_size as u32, color.filled())
+                        }),
+                        Shape::Ring => {
+                            series!(|p: &(f64, f64)| Circle::new(*p, s, c.stroke_width(1)), move |(x, y)| {
                                 Circle::new((x + 10, y), legend_size as u32, color.stroke_width(1))
-                            }
-                        ),
-                        Shape::Cross => series!(
-                            |p: &(f64, f64)| Cross::new(*p, s, c.stroke_width(2)),
-                            move |(x, y)| {
+                            })
+                        }
+                        Shape::Cross => {
+                            series!(|p: &(f64, f64)| Cross::new(*p, s, c.stroke_width(2)), move |(x, y)| {
                                 Cross::new((x + 10, y), legend_size as u32, color.stroke_width(2))
-                            }
-                        ),
-                        Shape::Triangle => series!(
-                            |p: &(f64, f64)| TriangleMarker::new(*p, s, c.filled()),
-                            move |(x, y)| {
+                            })
+                        }
+                        Shape::Triangle => {
+                            series!(|p: &(f64, f64)| TriangleMarker::new(*p, s, c.filled()), move |(x, y)| {
                                 TriangleMarker::new((x + 10, y), legend_size as u32, color.filled())
-                            }
-                        ),
+                            })
+                        }
                         Shape::Square => series!(
-                            |p: &(f64, f64)| EmptyElement::at(*p)
-                                + Rectangle::new([(-sz, -sz), (sz, sz)], c.filled()),
+                            |p: &(f64, f64)| EmptyElement::at(*p) + Rectangle::new([(-sz, -sz), (sz, sz)], c.filled()),
                             move |(x, y)| Rectangle::new(
-                                [
-                                    (x + 10 - legend_size, y - legend_size),
-                                    (x + 10 + legend_size, y + legend_size)
-                                ],
+                                [(x + 10 - legend_size, y - legend_size), (x + 10 + legend_size, y + legend_size)],
                                 color.filled()
                             )
                         ),
                     }
                 }
-                LayerKind::Line {
-                    points,
-                    dashed,
-                    width,
-                } => {
+                LayerKind::Line { points, dashed, width } => {
                     // A line is broken at non-finite values rather than joined across them.
                     let mut runs: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
                     for p in points {
@@ -395,29 +376,19 @@ pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
                     let mut first = true;
                     for run in runs.into_iter().filter(|r| r.len() > 1) {
                         let ann = if *dashed {
-                            chart
-                                .draw_series(DashedLineSeries::new(run, 7, 4, style))
-                                .map_err(draw_error)?
+                            chart.draw_series(DashedLineSeries::new(run, 7, 4, style)).map_err(draw_error)?
                         } else {
-                            chart
-                                .draw_series(LineSeries::new(run, style))
-                                .map_err(draw_error)?
+                            chart.draw_series(LineSeries::new(run, style)).map_err(draw_error)?
                         };
                         if first && !label.is_empty() {
                             let d = *dashed;
                             let w = *width;
-                            ann.label(label.clone())
-                                .legend(move |(x, y)| legend_line((x, y), d, w, color));
+                            ann.label(label.clone()).legend(move |(x, y)| legend_line((x, y), d, w, color));
                         }
                         first = false;
                     }
                 }
-                LayerKind::Band {
-                    x,
-                    lower,
-                    upper,
-                    opacity,
-                } => {
+                LayerKind::Band { x, lower, upper, opacity } => {
                     let mut top = Vec::new();
                     let mut bottom = Vec::new();
                     for ((a, lo), hi) in x.iter().zip(lower).zip(upper) {
@@ -430,13 +401,9 @@ pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
                         bottom.reverse();
                         top.extend(bottom);
                         let fill = color.mix(*opacity).filled();
-                        let ann = chart
-                            .draw_series(std::iter::once(Polygon::new(top, fill)))
-                            .map_err(draw_error)?;
+                        let ann = chart.draw_series(std::iter::once(Polygon::new(top, fill))).map_err(draw_error)?;
                         if !label.is_empty() {
-                            ann.label(label).legend(move |(x, y)| {
-                                Rectangle::new([(x, y - 5), (x + 20, y + 5)], fill)
-                            });
+                            ann.label(label).legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 20, y + 5)], fill));
                         }
                     }
                 }
@@ -446,18 +413,13 @@ pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
                     for &y in ys.iter().filter(|y| y.is_finite()) {
                         let seg = vec![(x0, y), (x1, y)];
                         let ann = if *dashed {
-                            chart
-                                .draw_series(DashedLineSeries::new(seg, 5, 4, style))
-                                .map_err(draw_error)?
+                            chart.draw_series(DashedLineSeries::new(seg, 5, 4, style)).map_err(draw_error)?
                         } else {
-                            chart
-                                .draw_series(LineSeries::new(seg, style))
-                                .map_err(draw_error)?
+                            chart.draw_series(LineSeries::new(seg, style)).map_err(draw_error)?
                         };
                         if first && !label.is_empty() {
                             let d = *dashed;
-                            ann.label(label.clone())
-                                .legend(move |(x, y)| legend_line((x, y), d, 1, color));
+                            ann.label(label.clone()).legend(move |(x, y)| legend_line((x, y), d, 1, color));
                         }
                         first = false;
                     }
@@ -468,18 +430,13 @@ pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
                     for &x in xs.iter().filter(|x| x.is_finite()) {
                         let seg = vec![(x, y0), (x, y1)];
                         let ann = if *dashed {
-                            chart
-                                .draw_series(DashedLineSeries::new(seg, 5, 4, style))
-                                .map_err(draw_error)?
+                            chart.draw_series(DashedLineSeries::new(seg, 5, 4, style)).map_err(draw_error)?
                         } else {
-                            chart
-                                .draw_series(LineSeries::new(seg, style))
-                                .map_err(draw_error)?
+                            chart.draw_series(LineSeries::new(seg, style)).map_err(draw_error)?
                         };
                         if first && !label.is_empty() {
                             let d = *dashed;
-                            ann.label(label.clone())
-                                .legend(move |(x, y)| legend_line((x, y), d, 1, color));
+                            ann.label(label.clone()).legend(move |(x, y)| legend_line((x, y), d, 1, color));
                         }
                         first = false;
                     }
@@ -495,10 +452,7 @@ pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
                         .map_err(draw_error)?;
                     if !label.is_empty() {
                         ann.label(label).legend(move |(x, y)| {
-                            PathElement::new(
-                                vec![(x + 10, y - 5), (x + 10, y + 5)],
-                                color.stroke_width(1),
-                            )
+                            PathElement::new(vec![(x + 10, y - 5), (x + 10, y + 5)], color.stroke_width(1))
                         });
                     }
                 }
@@ -512,9 +466,7 @@ pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
                         )
                         .map_err(draw_error)?;
                     if !label.is_empty() {
-                        ann.label(label).legend(move |(x, y)| {
-                            Rectangle::new([(x, y - 5), (x + 20, y + 5)], fill)
-                        });
+                        ann.label(label).legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 20, y + 5)], fill));
                     }
                 }
                 LayerKind::Segments { segments, width } => {
@@ -529,8 +481,7 @@ pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
                         .map_err(draw_error)?;
                     if !label.is_empty() {
                         let w = *width;
-                        ann.label(label)
-                            .legend(move |(x, y)| legend_line((x, y), false, w, color));
+                        ann.label(label).legend(move |(x, y)| legend_line((x, y), false, w, color));
                     }
                 }
             }
@@ -550,12 +501,7 @@ pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
             .map_err(draw_error)?;
         root.present().map_err(draw_error)?;
     }
-    Ok(Figure {
-        id: spec.id.clone(),
-        title: spec.title.clone(),
-        desc: spec.desc.clone(),
-        svg: finish_svg(&raw, spec),
-    })
+    Ok(Figure { id: spec.id.clone(), title: spec.title.clone(), desc: spec.desc.clone(), svg: finish_svg(&raw, spec) })
 }
 
 /// A legend line 20 units long: two pieces with a gap when dashed (one concrete element type).
@@ -564,12 +510,7 @@ fn legend_line<DB: DrawingBackend>(
     dashed: bool,
     width: u32,
     color: RGBColor,
-) -> plotters::element::ComposedElement<
-    (i32, i32),
-    DB,
-    PathElement<(i32, i32)>,
-    PathElement<(i32, i32)>,
-> {
+) -> plotters::element::ComposedElement<(i32, i32), DB, PathElement<(i32, i32)>, PathElement<(i32, i32)>> {
     let style = color.stroke_width(width);
     let (a, b) = if dashed { (7, 11) } else { (10, 10) };
     EmptyElement::at(at)
@@ -608,12 +549,8 @@ pub fn round_svg_numbers(svg: &str) -> String {
             in_tag = false;
         }
         let starts_number = in_tag
-            && (c.is_ascii_digit()
-                || (c == '-' && chars.get(i + 1).is_some_and(|d| d.is_ascii_digit())))
-            && !(i > 0
-                && (chars[i - 1].is_ascii_alphanumeric()
-                    || chars[i - 1] == '#'
-                    || chars[i - 1] == '_'));
+            && (c.is_ascii_digit() || (c == '-' && chars.get(i + 1).is_some_and(|d| d.is_ascii_digit())))
+            && !(i > 0 && (chars[i - 1].is_ascii_alphanumeric() || chars[i - 1] == '#' || chars[i - 1] == '_'));
         if starts_number {
             let start = i;
             i += 1;
@@ -652,14 +589,8 @@ fn round_token(token: &str) -> String {
 /// Indices 0..n thinned to at most `max` by taking every k-th one (k = ⌈n / max⌉), plus every index
 /// in `keep` (e.g. flagged rows). Deterministic; ascending.
 pub fn thin(n: usize, max: usize, keep: &[bool]) -> Vec<usize> {
-    let k = if max == 0 {
-        n.max(1)
-    } else {
-        n.div_ceil(max).max(1)
-    };
-    (0..n)
-        .filter(|&i| i % k == 0 || keep.get(i).copied().unwrap_or(false))
-        .collect()
+    let k = if max == 0 { n.max(1) } else { n.div_ceil(max).max(1) };
+    (0..n).filter(|&i| i % k == 0 || keep.get(i).copied().unwrap_or(false)).collect()
 }
 
 #[cfg(test)]
@@ -669,10 +600,7 @@ mod tests {
     #[test]
     fn rounds_numbers_in_tags_only() {
         let s = "<text x=\"1.23456\" font-size=\"9.677419\" fill=\"#1B5E5A\">3.14159</text>";
-        assert_eq!(
-            round_svg_numbers(s),
-            "<text x=\"1.23\" font-size=\"9.68\" fill=\"#1B5E5A\">3.14159</text>"
-        );
+        assert_eq!(round_svg_numbers(s), "<text x=\"1.23\" font-size=\"9.68\" fill=\"#1B5E5A\">3.14159</text>");
         assert_eq!(round_token("-0.001"), "0");
         assert_eq!(round_token("12"), "12");
     }

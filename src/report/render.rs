@@ -21,9 +21,8 @@ pub fn render_context(ctx: &ReportContext) -> Result<String, Error> {
     env.set_lstrip_blocks(true);
     env.add_template("report.html", TEMPLATE)
         .map_err(|e| Error::new(format!("the report template is invalid: {e}")))?;
-    let tmpl = env
-        .get_template("report.html")
-        .map_err(|e| Error::new(format!("the report template is missing: {e}")))?;
+    let tmpl =
+        env.get_template("report.html").map_err(|e| Error::new(format!("the report template is missing: {e}")))?;
     tmpl.render(minijinja::context! { r => ctx, css => CSS })
         .map_err(|e| Error::new(format!("cannot render the report: {e}")))
 }
