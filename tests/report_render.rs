@@ -303,7 +303,7 @@ fn no_notes_and_nothing_flagged_say_so() {
 }
 
 #[test]
-fn zz_dump_svg() {
+fn sample_svg_written_on_request() {
     if let Ok(dir) = std::env::var("KNOTWISE_REPORT_SAMPLE") {
         let f = plots::draw(&hostile_chart()).unwrap();
         let _ = std::fs::write(std::path::Path::new(&dir).join("chart.svg"), &f.svg);

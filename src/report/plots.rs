@@ -504,13 +504,12 @@ pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
     Ok(Figure { id: spec.id.clone(), title: spec.title.clone(), desc: spec.desc.clone(), svg: finish_svg(&raw, spec) })
 }
 
+/// Two path pieces drawn at one legend anchor.
+type LegendLine<DB> =
+    plotters::element::ComposedElement<(i32, i32), DB, PathElement<(i32, i32)>, PathElement<(i32, i32)>>;
+
 /// A legend line 20 units long: two pieces with a gap when dashed (one concrete element type).
-fn legend_line<DB: DrawingBackend>(
-    at: (i32, i32),
-    dashed: bool,
-    width: u32,
-    color: RGBColor,
-) -> plotters::element::ComposedElement<(i32, i32), DB, PathElement<(i32, i32)>, PathElement<(i32, i32)>> {
+fn legend_line<DB: DrawingBackend>(at: (i32, i32), dashed: bool, width: u32, color: RGBColor) -> LegendLine<DB> {
     let style = color.stroke_width(width);
     let (a, b) = if dashed { (7, 11) } else { (10, 10) };
     EmptyElement::at(at)
