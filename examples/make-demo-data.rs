@@ -38,11 +38,14 @@ fn assessment(out_dir: &str) {
         let transit_distance = (60.0 + 2400.0 * d.uniform() * d.uniform()).round();
         let storeys = 1 + d.below(3);
         let district = d.below(4) as usize;
-        // Smooth effects: price per m² falls with size then levels off; older stock is cheaper until
-        // period buildings (60+ years) regain value; transit proximity helps up to about 1.2 km.
+        // Smooth effects: price per m² falls with size then levels off; older stock is cheaper, except
+        // for a band of sought-after period buildings around 70 years; transit proximity helps, but
+        // the first 150 m or so (noise, crowds) are worth less.
         let g_area = 900.0 * libm::exp(-(floor_area - 38.0) / 45.0);
-        let g_age = -14.0 * building_age + 0.17 * building_age * building_age;
-        let g_transit = -520.0 * (1.0 - libm::exp(-transit_distance / 700.0));
+        let age_bump = (building_age - 70.0) / 14.0;
+        let g_age = -9.0 * building_age + 300.0 * libm::exp(-age_bump * age_bump);
+        let near = transit_distance / 150.0;
+        let g_transit = -520.0 * (1.0 - libm::exp(-transit_distance / 700.0)) - 260.0 * libm::exp(-near * near);
         let mu = 3600.0 + g_area + g_age + g_transit + 95.0 * storeys as f64 + district_effect[district];
         let clean = mu + 160.0 * d.normal();
         let mut price = clean;

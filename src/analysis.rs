@@ -146,7 +146,11 @@ pub fn analyse(study: Study, frame: Frame, spec_display: &str) -> Result<Analysi
         Err(SelectError::NonePossible(points)) => {
             let reasons: Vec<String> = points
                 .iter()
-                .map(|p| format!("sizes {:?}: {}", p.sizes, p.skipped.clone().unwrap_or_else(|| "no criterion".into())))
+                .map(|p| {
+                    let sizes: Vec<String> =
+                        terms.smooth.iter().zip(&p.sizes).map(|(s, k)| format!("{} = {k}", s.column)).collect();
+                    format!("{}: {}", sizes.join(", "), p.skipped.clone().unwrap_or_else(|| "no criterion".into()))
+                })
                 .collect();
             return Err(Error::new(format!(
                 "no basis size on the grid is possible for these data:\n    {}",

@@ -203,7 +203,13 @@ impl Evaluator<'_> {
         point.p = design.p;
         let classical = match fit::classical(&design) {
             Ok(f) => f,
-            Err(FitError::RankDeficient { column, aliased_with }) if !sizes.is_empty() => {
+            // Aliasing inside a smooth block (too few rows between knots) makes this size impossible;
+            // aliasing among linear columns is the model's fault at every size, so it is an error.
+            Err(FitError::RankDeficient { column, aliased_with })
+                if design.spans.iter().any(|s| {
+                    s.kind == crate::design::TermKind::Smooth && (s.start..s.start + s.len).contains(&column)
+                }) =>
+            {
                 let names: Vec<&str> = aliased_with.iter().map(|&c| design.names[c].as_str()).collect();
                 point.skipped = Some(format!(
                     "the design is rank deficient: `{}` is a combination of {} (too few rows between knots)",

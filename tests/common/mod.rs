@@ -58,3 +58,29 @@ impl Lcg {
         (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
     }
 }
+
+/// Write `csv` and `yaml` (whose data.file must be `data.csv`) into a scratch folder and run the
+/// numerical pipeline on them.
+pub fn analyse(name: &str, yaml: &str, csv: &str) -> knotwise::analysis::Analysis {
+    let dir = std::env::temp_dir().join(format!("knotwise-lib-{name}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    std::fs::write(dir.join("data.csv"), csv).unwrap();
+    let study = knotwise::spec::parse(yaml, "study.yaml", &dir).unwrap_or_else(|e| panic!("{e}"));
+    let frame = knotwise::app::load_frame(&study, "study.yaml").unwrap_or_else(|e| panic!("{e}"));
+    let a = knotwise::analysis::analyse(study, frame, "study.yaml").unwrap_or_else(|e| panic!("{e}"));
+    let _ = std::fs::remove_dir_all(&dir);
+    a
+}
+
+/// CSV text from named columns.
+pub fn csv_text(cols: &[(&str, Vec<f64>)]) -> String {
+    let mut s = cols.iter().map(|c| c.0).collect::<Vec<_>>().join(",");
+    s.push('\n');
+    for i in 0..cols[0].1.len() {
+        let row: Vec<String> = cols.iter().map(|c| format!("{}", c.1[i])).collect();
+        s.push_str(&row.join(","));
+        s.push('\n');
+    }
+    s
+}
