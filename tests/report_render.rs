@@ -161,6 +161,7 @@ fn hostile_chart() -> ChartSpec {
         ],
         legend: LegendAt::UpperRight,
         y_include: vec![],
+        y_range: None,
     }
 }
 

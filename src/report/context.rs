@@ -32,6 +32,9 @@ pub const MAX_LEVERAGE_LISTED: usize = 50;
 
 const DASH: &str = "—";
 
+/// A plotted (x, y) point.
+type Point = (f64, f64);
+
 // ---------------------------------------------------------------------------------------------------
 // Number formatting
 
@@ -88,12 +91,34 @@ fn plural(n: usize, one: &str, many: &str) -> String {
     }
 }
 
-/// "floor_area 6, building_age 5" (or "none" with no smooth terms).
-pub fn sizes_text(s: &Sizes) -> String {
+/// "floor_area 6, building_age 5" in the spec's term order `order` (the results map is keyed by name
+/// and may be sorted), or "none" with no smooth terms.
+pub fn sizes_text(s: &Sizes, order: &[String]) -> String {
     if s.0.is_empty() {
         return "none (no smooth terms)".into();
     }
-    s.0.iter().map(|(k, v)| format!("{k} {v}")).collect::<Vec<_>>().join(", ")
+    let mut names: Vec<&str> = order.iter().map(String::as_str).filter(|n| s.0.contains_key(*n)).collect();
+    names.extend(s.0.keys().map(String::as_str).filter(|k| !order.iter().any(|o| o == k)));
+    names
+        .iter()
+        .map(|k| format!("{k} {}", s.0.get(*k).map_or(DASH.to_string(), |v| v.to_string())))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// The smooth terms in spec order (as the results list their curves).
+fn term_order(r: &Results) -> Vec<String> {
+    r.fits.robust.smooth.iter().map(|s| s.column.clone()).collect()
+}
+
+/// 4 significant digits with trailing zeros trimmed (for settings such as the cutoff: "2.5").
+fn short(v: f64) -> String {
+    let s = sig(v, 4);
+    if s.contains('.') && !s.contains('e') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
 }
 
 /// Type-7 quantile of an ascending slice (Hyndman & Fan 1996), the rule `basis::quantile_sorted` uses;
@@ -519,8 +544,8 @@ fn summary_section(a: &Analysis, r: &Results, fits: &FitsCtx) -> SummaryCtx {
         kv("Response", a.study.response.clone()),
         kv("Linear terms", if linear.is_empty() { "none".into() } else { linear.join(", ") }),
         kv("Smooth terms", if smooth.is_empty() { "none".into() } else { smooth.join(", ") }),
-        kv("Basis sizes, classical fit", sizes_text(&r.fits.classical.basis_sizes)),
-        kv("Basis sizes, robust fit", sizes_text(&r.fits.robust.basis_sizes)),
+        kv("Basis sizes, classical fit", sizes_text(&r.fits.classical.basis_sizes, &term_order(r))),
+        kv("Basis sizes, robust fit", sizes_text(&r.fits.robust.basis_sizes, &term_order(r))),
     ];
     let mut findings = Vec::new();
     let dropped = r.study.dropped.len();
@@ -534,7 +559,7 @@ fn summary_section(a: &Analysis, r: &Results, fits: &FitsCtx) -> SummaryCtx {
     findings.push(format!(
         "{} flagged by the robust fit (|scaled residual| > {}); about {} would be flagged by chance under normal errors.",
         plural(o.n_flagged, "row is", "rows are"),
-        sig(o.cutoff, 4),
+        short(o.cutoff),
         fixed(o.expected_false, 1)
     ));
     findings.push(fits.change_sentence.clone());
@@ -728,7 +753,7 @@ fn selection_section(a: &Analysis, r: &Results) -> Result<SelectionCtx, Error> {
                 Some(s) => format!(
                     "{} (S-scale of the model with basis sizes {})",
                     sig(s, 4),
-                    sizes_text(&m.scale_from_basis_sizes)
+                    sizes_text(&m.scale_from_basis_sizes, &term_order(r))
                 ),
                 None => "not used (each grid point has its own scale)".into(),
             },
@@ -741,7 +766,10 @@ fn selection_section(a: &Analysis, r: &Results) -> Result<SelectionCtx, Error> {
         .enumerate()
         .map(|(i, p)| PointRow {
             index: (i + 1).to_string(),
-            sizes: p.basis_sizes.0.values().map(|v| v.to_string()).collect(),
+            sizes: term_names
+                .iter()
+                .map(|t| p.basis_sizes.0.get(t).map_or(DASH.to_string(), |v| v.to_string()))
+                .collect(),
             p: p.p.to_string(),
             bic: ofixed(p.bic, 4),
             rbic: ofixed(p.rbic, 4),
@@ -824,6 +852,7 @@ fn criteria_figure(r: &Results) -> Result<Figure, Error> {
         ],
         legend: LegendAt::UpperRight,
         y_include: vec![0.0],
+        y_range: None,
     };
     plots::draw(&spec)
 }
@@ -895,7 +924,7 @@ fn fits_section(r: &Results) -> FitsCtx {
                 r_squared: ofixed(f.r_squared, 3),
                 rows: f.n.to_string(),
                 coefficients: f.p.to_string(),
-                sizes: sizes_text(&f.basis_sizes),
+                sizes: sizes_text(&f.basis_sizes, &term_order(r)),
                 termination: f.termination.describe(),
             });
         }
@@ -905,7 +934,7 @@ fn fits_section(r: &Results) -> FitsCtx {
             vec![
                 kv("Start", s.kind.clone()),
                 kv("S-scale", osig(s.s_scale)),
-                kv("S-estimate basis sizes", sizes_text(&s.s_basis_sizes)),
+                kv("S-estimate basis sizes", sizes_text(&s.s_basis_sizes, &term_order(r))),
                 kv("Random subsamples drawn", s.subsamples.to_string()),
                 kv("Singular subsamples redrawn", s.singular_redraws.to_string()),
                 kv("Rows in the search", s.search_rows.to_string()),
@@ -965,6 +994,28 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
         let robust = curve_of(Some(&r.fits.robust));
         let classical = curve_of(Some(&r.fits.classical));
         let without = curve_of(r.fits.classical_without_flagged.as_ref());
+        // The y range comes from the unflagged points and the curves, so gross outliers do not flatten
+        // the curves; flagged points beyond it are drawn at the edge with their own marker.
+        let mut ys: Vec<f64> = pts.iter().map(|p| p.1).collect();
+        for c in [&robust, &classical, &without].into_iter().flatten() {
+            ys.extend(c.1.iter().chain(&c.2).chain(&c.3).copied());
+        }
+        let (ylo, yhi) = ys
+            .iter()
+            .copied()
+            .filter(|v| v.is_finite())
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), v| (l.min(v), h.max(v)));
+        let y_range = (ylo.is_finite() && yhi > ylo).then(|| {
+            let pad = (yhi - ylo) * 0.06;
+            (ylo - pad, yhi + pad)
+        });
+        let (fl_in, fl_out): (Vec<Point>, Vec<Point>) = match y_range {
+            Some((lo, hi)) => {
+                let (inside, outside): (Vec<_>, Vec<_>) = fl.iter().partition(|p| p.1 >= lo && p.1 <= hi);
+                (inside, outside.into_iter().map(|p| (p.0, p.1.clamp(lo, hi))).collect())
+            }
+            None => (fl.clone(), Vec::new()),
+        };
         let mut layers = Vec::new();
         if let Some((g, _, lo, hi)) = &robust {
             layers.push(Layer {
@@ -979,11 +1030,19 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
             label: "robust partial residual".into(),
         });
         let n_flag_shown = fl.len();
-        if !fl.is_empty() {
+        let n_flag_edge = fl_out.len();
+        if !fl_in.is_empty() {
             layers.push(Layer {
-                kind: LayerKind::Points { points: fl, shape: Shape::Cross, size: 4, opacity: 1.0 },
+                kind: LayerKind::Points { points: fl_in, shape: Shape::Cross, size: 4, opacity: 1.0 },
                 ink: Ink::Flag,
                 label: "flagged row".into(),
+            });
+        }
+        if !fl_out.is_empty() {
+            layers.push(Layer {
+                kind: LayerKind::Points { points: fl_out, shape: Shape::Triangle, size: 5, opacity: 1.0 },
+                ink: Ink::Flag,
+                label: "flagged row beyond the range (at the edge)".into(),
             });
         }
         let line = |c: &(Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>)| {
@@ -1022,8 +1081,13 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
             let hi = f.iter().copied().fold(f64::NEG_INFINITY, f64::max);
             format!(" The robust curve runs from {} to {}.", sig(lo, 4), sig(hi, 4))
         });
+        let edge = if n_flag_edge > 0 {
+            format!(", of which {n_flag_edge} lie beyond the plotted range and are drawn as triangles at its edge")
+        } else {
+            String::new()
+        };
         let desc = format!(
-            "Robust curve of {column} over {} to {} with its pointwise 95% band, the classical curve{}; {} of {n} robust partial residuals shown ({}, all flagged rows kept); {} marked with crosses; a rug of {} x values.{curve_range}",
+            "Robust curve of {column} over {} to {} with its pointwise 95% band, the classical curve{}; {} of {n} robust partial residuals shown ({}, all flagged rows kept); {} marked with crosses{edge}; a rug of {} x values.{curve_range}",
             sig(xmin, 4),
             sig(xmax, 4),
             if without.is_some() { " and the classical curve without flagged rows (dashed)" } else { "" },
@@ -1042,6 +1106,7 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
             layers,
             legend: LegendAt::UpperLeft,
             y_include: vec![],
+            y_range,
         })?;
         let mut moves = Vec::new();
         if let Some(m) = r.sensitivity.curves.iter().find(|c| c.column == column) {
@@ -1071,7 +1136,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
     let rf = &a.selection.robust_fit;
     let n = scaled.len();
     let cutoff = r.outliers.cutoff;
-    let cut_label = format!("±cutoff {}", sig(cutoff, 4));
+    let cut_label = format!("±cutoff {}", short(cutoff));
     let shown = plots::thin(n, MAX_POINTS, flagged);
     let k = n.div_ceil(MAX_POINTS).max(1);
     let thin_words =
@@ -1119,7 +1184,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         title: "Scaled robust residuals against fitted values".into(),
         desc: format!(
             "Scaled robust residuals of {n} rows against the robust fitted values ({thin_words}), with dashed lines at ±{}; {} beyond them, marked with crosses.",
-            sig(cutoff, 4),
+            short(cutoff),
             plural(n_flagged, "row lies", "rows lie")
         ),
         x_label: format!("robust fitted {}", a.study.response),
@@ -1127,6 +1192,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         layers,
         legend: LegendAt::UpperRight,
         y_include: vec![-cutoff, cutoff],
+        y_range: None,
     })?);
 
     // 7.2 normal QQ plot, plotting positions (i − 0.5)/n.
@@ -1173,6 +1239,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         layers,
         legend: LegendAt::UpperLeft,
         y_include: vec![],
+        y_range: None,
     })?);
 
     // 7.3 horizontal boxplot with Tukey fences.
@@ -1239,6 +1306,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
             layers,
             legend: LegendAt::UpperRight,
             y_include: vec![0.0, 1.2],
+            y_range: None,
         })?);
     }
 
@@ -1273,6 +1341,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
                 layers: vec![Layer { kind: LayerKind::Bars { bars, opacity: 0.75 }, ink: Ink::Robust, label: "rows per bin".into() }],
                 legend: LegendAt::UpperLeft,
                 y_include: vec![0.0],
+                y_range: None,
             })?);
         }
         _ => sentences.push("The robust fit reports no weights, so no weight histogram is drawn.".into()),
@@ -1319,12 +1388,13 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         layers,
         legend: LegendAt::UpperRight,
         y_include: vec![-cutoff, cutoff],
+        y_range: None,
     })?);
     Ok(DiagnosticsCtx {
         intro: format!(
             "Residuals are the robust fit's residuals divided by the robust scale {}. Rows beyond ±{} are flagged and drawn as crosses.",
             osig(r.fits.robust.scale),
-            sig(cutoff, 4)
+            short(cutoff)
         ),
         figures,
         sentences,
@@ -1336,16 +1406,16 @@ fn outliers_section(r: &Results) -> OutliersCtx {
     let flagged_sentence = if o.n_flagged == 0 {
         format!(
             "No row has |scaled robust residual| above {}; about {} would be expected by chance under normal errors.",
-            sig(o.cutoff, 4),
+            short(o.cutoff),
             fixed(o.expected_false, 1)
         )
     } else {
         format!(
             "{} |scaled robust residual| above {}; about {} would be expected by chance under normal errors (n × P(|Z| > {})).",
             plural(o.n_flagged, "row has", "rows have"),
-            sig(o.cutoff, 4),
+            short(o.cutoff),
             fixed(o.expected_false, 1),
-            sig(o.cutoff, 4)
+            short(o.cutoff)
         )
     };
     let flagged = o
@@ -1406,7 +1476,7 @@ fn outliers_section(r: &Results) -> OutliersCtx {
         match (&s.classical_rerun_basis_sizes, s.classical_rerun_changes_size) {
             (Some(sz), Some(changes)) => rerun.push(format!(
                 "Rerunning the classical selection without the flagged rows chooses basis sizes {}: {}.",
-                sizes_text(sz),
+                sizes_text(sz, &term_order(r)),
                 if changes { "the size changes" } else { "the same as with all rows" }
             )),
             _ => rerun.push("The classical selection was not rerun without the flagged rows (refit turned off, or no grid point possible).".into()),

@@ -158,6 +158,8 @@ pub struct ChartSpec {
     pub legend: LegendAt,
     /// Force these values into the y range (e.g. 0 for bars).
     pub y_include: Vec<f64>,
+    /// A fixed y range (the caller clamps points beyond it and says so in `desc`).
+    pub y_range: Option<(f64, f64)>,
 }
 
 /// A drawn figure: the SVG text (safe to insert as HTML) and its accessible texts.
@@ -281,7 +283,8 @@ fn draw_error<E: std::fmt::Debug>(e: E) -> Error {
 
 /// Draw a figure as accessible, deterministic SVG.
 pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
-    let ((x0, x1), (y0, y1)) = ranges(spec);
+    let ((x0, x1), (ya, yb)) = ranges(spec);
+    let (y0, y1) = spec.y_range.filter(|(a, b)| a.is_finite() && b.is_finite() && b > a).unwrap_or((ya, yb));
     let mut raw = String::new();
     {
         let root = SVGBackend::with_string(&mut raw, (WIDTH, HEIGHT)).into_drawing_area();
