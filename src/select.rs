@@ -250,16 +250,53 @@ impl Evaluator<'_> {
     }
 }
 
-fn argmin(points: &[Evaluated], key: impl Fn(&GridPoint) -> Option<f64>) -> Option<usize> {
+fn argmin(points: &[GridPoint], key: impl Fn(&GridPoint) -> Option<f64>) -> Option<usize> {
     let mut best: Option<(usize, f64)> = None;
-    for (i, e) in points.iter().enumerate() {
-        if let Some(v) = key(&e.point) {
+    for (i, p) in points.iter().enumerate() {
+        if let Some(v) = key(p) {
             if v.is_finite() && best.is_none_or(|(_, b)| v < b) {
                 best = Some((i, v));
             }
         }
     }
     best.map(|(i, _)| i)
+}
+
+/// Every evaluated point, and the designs and fits of the best point so far for each criterion only,
+/// so that memory stays at a few designs however large the grid (ties keep the earlier point).
+#[derive(Default)]
+struct Keeper {
+    points: Vec<GridPoint>,
+    classical: Option<(usize, f64, Design, Fit)>,
+    robust: Option<(usize, f64, Design, Fit, Option<SEstimate>)>,
+}
+
+impl Keeper {
+    fn add(&mut self, e: Evaluated) {
+        let i = self.points.len();
+        let better = |v: Option<f64>, best: Option<f64>| v.is_some_and(|v| v.is_finite() && best.is_none_or(|b| v < b));
+        if let (Some((design, classical)), Some((robust, s_est))) = (e.classical, e.robust) {
+            let c_better = better(e.point.bic, self.classical.as_ref().map(|c| c.1));
+            let r_better = better(e.point.rbic, self.robust.as_ref().map(|r| r.1));
+            let (c_design, r_design) = match (c_better, r_better) {
+                (true, true) => (Some(design.clone()), Some(design)),
+                (true, false) => (Some(design), None),
+                (false, true) => (None, Some(design)),
+                (false, false) => (None, None),
+            };
+            if let Some(d) = r_design {
+                self.robust = Some((i, e.point.rbic.unwrap_or(f64::INFINITY), d, robust, s_est));
+            }
+            if let Some(d) = c_design {
+                self.classical = Some((i, e.point.bic.unwrap_or(f64::INFINITY), d, classical));
+            }
+        }
+        self.points.push(e.point);
+    }
+
+    fn has(&self, sizes: &[usize]) -> bool {
+        self.points.iter().any(|p| p.sizes == sizes)
+    }
 }
 
 /// Run the selection.
@@ -298,30 +335,30 @@ pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustP
         }
     }
 
-    let mut evaluated: Vec<Evaluated> = Vec::new();
+    let mut kept = Keeper::default();
     if search == SearchKind::CoordinateWise {
         // Start from the best shared size, then improve term by term, for each criterion.
-        let shared_points: Vec<Vec<usize>> = spec.shared.iter().map(|&k| vec![k; n_smooth]).collect();
-        for s in &shared_points {
-            evaluated.push(ev.evaluate(s)?);
+        for &k in &spec.shared {
+            kept.add(ev.evaluate(&vec![k; n_smooth])?);
         }
         for which in 0..2 {
             let key = |p: &GridPoint| if which == 0 { p.bic } else { p.rbic };
-            let Some(mut current) = argmin(&evaluated, key).map(|i| evaluated[i].point.sizes.clone()) else { continue };
+            let Some(mut current) = argmin(&kept.points, key).map(|i| kept.points[i].sizes.clone()) else { continue };
             for _sweep in 0..3 {
                 let before = current.clone();
                 for t in 0..n_smooth {
                     for &k in &lists[t] {
                         let mut s = current.clone();
                         s[t] = k;
-                        if !evaluated.iter().any(|e| e.point.sizes == s) {
-                            evaluated.push(ev.evaluate(&s)?);
+                        if !kept.has(&s) {
+                            kept.add(ev.evaluate(&s)?);
                         }
                     }
-                    let best = evaluated
+                    let best = kept
+                        .points
                         .iter()
-                        .filter(|e| (0..n_smooth).all(|u| u == t || e.point.sizes[u] == current[u]))
-                        .filter_map(|e| key(&e.point).filter(|v| v.is_finite()).map(|v| (v, e.point.sizes.clone())))
+                        .filter(|p| (0..n_smooth).all(|u| u == t || p.sizes[u] == current[u]))
+                        .filter_map(|p| key(p).filter(|v| v.is_finite()).map(|v| (v, p.sizes.clone())))
                         .min_by(|a, b| a.0.total_cmp(&b.0));
                     if let Some((_, s)) = best {
                         current = s;
@@ -335,23 +372,14 @@ pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustP
         candidates.clear();
     } else {
         for s in &candidates {
-            evaluated.push(ev.evaluate(s)?);
+            kept.add(ev.evaluate(s)?);
         }
     }
 
-    let classical_choice = argmin(&evaluated, |p| p.bic);
-    let robust_choice = argmin(&evaluated, |p| p.rbic);
-    let (Some(ci), Some(ri)) = (classical_choice, robust_choice) else {
-        return Err(SelectError::NonePossible(evaluated.into_iter().map(|e| e.point).collect()));
-    };
-    let points: Vec<GridPoint> = evaluated.iter().map(|e| e.point.clone()).collect();
-    let mut slots: Vec<Option<Evaluated>> = evaluated.into_iter().map(Some).collect();
-    let take_c = slots[ci].as_ref().and_then(|e| e.classical.clone());
-    let r_eval = slots[ri].take();
-    let (Some((classical_design, classical_fit)), Some(r_eval)) = (take_c, r_eval) else {
-        return Err(SelectError::NonePossible(points));
-    };
-    let (Some((robust_design, _)), Some((robust_fit, s_at_point))) = (r_eval.classical, r_eval.robust) else {
+    let Keeper { points, classical, robust } = kept;
+    let (Some((ci, _, classical_design, classical_fit)), Some((ri, _, robust_design, robust_fit, s_at_point))) =
+        (classical, robust)
+    else {
         return Err(SelectError::NonePossible(points));
     };
     Ok(Selection {
