@@ -115,9 +115,9 @@ impl Basis {
         }
 
         let mut knots = Vec::with_capacity(size + degree + 1);
-        knots.extend(std::iter::repeat(lo).take(degree + 1));
+        knots.extend(std::iter::repeat_n(lo, degree + 1));
         knots.extend_from_slice(&interior);
-        knots.extend(std::iter::repeat(hi).take(degree + 1));
+        knots.extend(std::iter::repeat_n(hi, degree + 1));
         Ok(Basis { degree, knots })
     }
 

@@ -93,8 +93,8 @@ impl SmoothEncoding {
     /// The k − 1 centred basis values at `x` into `out`; `scratch` has length degree + 1.
     pub fn eval_centred(&self, x: f64, scratch: &mut [f64], out: &mut [f64]) {
         let m = self.columns();
-        for j in 0..m {
-            out[j] = -self.means[j];
+        for (o, mean) in out[..m].iter_mut().zip(&self.means) {
+            *o = -mean;
         }
         let first = self.basis.eval_nonzero(x, scratch);
         for (j, v) in scratch.iter().enumerate() {

@@ -131,13 +131,18 @@ fn total_sum_of_squares(y: &[f64]) -> f64 {
     y.iter().map(|v| (v - mean) * (v - mean)).sum()
 }
 
-fn finish(
-    design: &Design,
+/// The per-coefficient and per-row pieces every fit reports.
+struct Finished {
     coef: Vec<f64>,
     cov: Vec<f64>,
-    scale: f64,
-    critical: f64,
-) -> (Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>) {
+    std_errors: Vec<f64>,
+    lower: Vec<f64>,
+    upper: Vec<f64>,
+    fitted: Vec<f64>,
+    residuals: Vec<f64>,
+}
+
+fn finish(design: &Design, coef: Vec<f64>, cov: Vec<f64>, critical: f64) -> Finished {
     let p = design.p;
     let std_errors: Vec<f64> = (0..p).map(|j| cov[j * p + j].max(0.0).sqrt()).collect();
     let lower = (0..p).map(|j| coef[j] - critical * std_errors[j]).collect();
@@ -145,8 +150,7 @@ fn finish(
     let mut residuals = vec![0.0; design.n];
     linalg::residuals(&design.x, design.n, p, &design.y, &coef, &mut residuals);
     let fitted = design.y.iter().zip(&residuals).map(|(y, r)| y - r).collect();
-    let _ = scale;
-    (coef, cov, std_errors, lower, upper, fitted, residuals)
+    Finished { coef, cov, std_errors, lower, upper, fitted, residuals }
 }
 
 /// Classical least squares by Householder QR; σ̂² = RSS/(n − p); t-based 95% intervals (DESIGN.md §4.2).
@@ -161,8 +165,7 @@ pub fn classical(design: &Design) -> Result<Fit, FitError> {
     let inv = ls.xtx_inverse();
     let cov: Vec<f64> = inv.iter().map(|v| v * sigma2).collect();
     let critical = dist::t_quantile(0.975, df);
-    let (coef, cov, std_errors, lower, upper, fitted, residuals) =
-        finish(design, ls.coef, cov, sigma2.sqrt(), critical);
+    let Finished { coef, cov, std_errors, lower, upper, fitted, residuals } = finish(design, ls.coef, cov, critical);
     let tss = total_sum_of_squares(&design.y);
     let r_squared = if tss > 0.0 { 1.0 - ls.rss / tss } else { 1.0 };
     Ok(Fit {
@@ -218,7 +221,7 @@ pub fn robust(
         vec![0.0; p * p]
     };
     let critical = dist::normal_quantile(0.975);
-    let (coef, cov, std_errors, lower, upper, fitted, residuals) = finish(design, est.coef, cov, est.scale, critical);
+    let Finished { coef, cov, std_errors, lower, upper, fitted, residuals } = finish(design, est.coef, cov, critical);
     let rss = residuals.iter().map(|r| r * r).sum::<f64>();
     let tss = total_sum_of_squares(&design.y);
     let r_squared = if tss > 0.0 { 1.0 - rss / tss } else { 1.0 };
@@ -263,18 +266,12 @@ pub fn curve(design: &Design, fit: &Fit, j: usize, grid: &[f64]) -> Curve {
     let mut out = Curve { x: grid.to_vec(), value: vec![], lower: vec![], upper: vec![] };
     for &g in grid {
         enc.eval_centred(g, &mut scratch, &mut b);
-        let mut v = 0.0;
-        for a in 0..m {
-            v += b[a] * fit.coef[span.start + a];
-        }
+        let v: f64 = b.iter().zip(&fit.coef[span.start..span.start + m]).map(|(b, c)| b * c).sum();
         let mut var = 0.0;
-        for a in 0..m {
+        for (a, ba) in b.iter().enumerate() {
             let row = (span.start + a) * p + span.start;
-            let mut s = 0.0;
-            for c in 0..m {
-                s += fit.cov[row + c] * b[c];
-            }
-            var += b[a] * s;
+            let s: f64 = fit.cov[row..row + m].iter().zip(&b).map(|(c, bc)| c * bc).sum();
+            var += ba * s;
         }
         let se = var.max(0.0).sqrt();
         out.value.push(v);

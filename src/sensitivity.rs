@@ -144,12 +144,15 @@ pub fn influence(design: &Design, fit: &Fit, xtx_inv: &[f64], hat: &[f64], rows:
         .collect()
 }
 
+/// (estimate, std error, lower, upper, significant at 95%) of one coefficient in one fit.
+pub type CoefficientSummary = (f64, f64, f64, f64, bool);
+
 /// One linear coefficient across the three fits.
 #[derive(Debug, Clone)]
 pub struct CoefficientRow {
     pub name: String,
     /// (estimate, std error, lower, upper, significant) per fit: classical, robust, classical without flagged.
-    pub values: Vec<Option<(f64, f64, f64, f64, bool)>>,
+    pub values: Vec<Option<CoefficientSummary>>,
     pub sign_changes: bool,
     pub significance_changes: bool,
 }
@@ -281,7 +284,7 @@ pub fn analyse(
         .map(|&j| {
             let pick = |f: &Fit| Some((f.coef[j], f.std_errors[j], f.lower[j], f.upper[j], f.significant(j)));
             let values = vec![pick(cf), pick(rf), classical_without.as_ref().and_then(|(_, f)| pick(f))];
-            let present: Vec<(f64, f64, f64, f64, bool)> = values.iter().flatten().copied().collect();
+            let present: Vec<CoefficientSummary> = values.iter().flatten().copied().collect();
             let sign_changes = present.iter().any(|v| v.0 > 0.0) && present.iter().any(|v| v.0 < 0.0);
             let significance_changes = present.iter().any(|v| v.4) && present.iter().any(|v| !v.4);
             CoefficientRow { name: cd.names[j].clone(), values, sign_changes, significance_changes }

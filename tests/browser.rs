@@ -57,15 +57,22 @@ fn demo_report_renders_in_headless_chromium() {
     let dom = headless(&browser, &dir.join("profile1"), &["--dump-dom"], &url);
     let html = String::from_utf8_lossy(&dom.stdout);
     assert!(html.contains("<title>Residential sales, price per square metre"), "title missing from the DOM");
-    let sizes = &results["fits"]["robust"]["basis-sizes"];
-    let k = sizes["floor_area"].as_u64().unwrap();
-    assert!(html.contains(&format!("floor_area")) && html.contains(&k.to_string()), "chosen sizes missing");
+    let sizes: Vec<String> = results["fits"]["robust"]["basis-sizes"]
+        .as_object()
+        .unwrap()
+        .iter()
+        .map(|(term, k)| format!("{term} {k}"))
+        .collect();
+    let sizes = sizes.join(", ");
+    assert!(html.contains(&sizes), "chosen sizes `{sizes}` missing from the DOM");
     let storeys =
         results["fits"]["robust"]["coefficients"].as_array().unwrap().iter().find(|c| c["name"] == "storeys").unwrap()
             ["estimate"]
             .as_f64()
             .unwrap();
-    let shown = format!("{:.1}", storeys);
+    // The report prints estimates with 4 significant digits.
+    let decimals = (3 - storeys.abs().log10().floor() as i32).max(0) as usize;
+    let shown = format!("{storeys:.decimals$}");
     assert!(html.contains(&shown), "robust storeys coefficient {shown} not shown");
 
     let shot = root("docs/report-screenshot.png");
