@@ -51,7 +51,7 @@ pub fn warnings(a: &Analysis) -> Vec<String> {
         for (t, e) in edge.iter().enumerate() {
             if *e {
                 w.push(format!(
-                    "The {who} choice for `{}` ({} basis functions) sits at the edge of its grid; a wider grid may choose differently.",
+                    "The {who} choice for {} ({} basis functions) sits at the edge of its grid; a wider grid may choose differently.",
                     a.terms.smooth[t].column, sizes[t]
                 ));
             }
@@ -260,8 +260,10 @@ pub fn results(a: &Analysis, inputs: &Inputs) -> Results {
                     .iter()
                     .map(|&j| NamedValue { name: cd.names[j].clone(), value: finite(inf.dfbetas[j]) })
                     .collect();
+                // The largest move of an effect (the intercept's move is a level shift, not an effect).
                 let largest = dfbetas
                     .iter()
+                    .filter(|v| v.name != "intercept")
                     .filter_map(|v| v.value)
                     .map(f64::abs)
                     .fold(None, |m: Option<f64>, v| Some(m.map_or(v, |m| m.max(v))));

@@ -575,7 +575,7 @@ fn summary_section(a: &Analysis, r: &Results, fits: &FitsCtx) -> SummaryCtx {
                 let top = i
                     .dfbetas
                     .iter()
-                    .filter(|v| v.value.is_some())
+                    .filter(|v| v.value.is_some() && v.name != "intercept")
                     .max_by(|x, y| x.value.unwrap_or(0.0).abs().total_cmp(&y.value.unwrap_or(0.0).abs()));
                 match top {
                     Some(t) => {
@@ -1092,7 +1092,7 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
             sig(xmax, 4),
             if without.is_some() { " and the classical curve without flagged rows (dashed)" } else { "" },
             shown.len(),
-            if k == 1 { "every row".to_string() } else { format!("every {k}th row") },
+            if k == 1 { "every row".to_string() } else { format!("every {} row", ordinal(k)) },
             plural(n_flag_shown, "flagged row", "flagged rows"),
             rug.len()
         );
@@ -1139,8 +1139,11 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
     let cut_label = format!("±cutoff {}", short(cutoff));
     let shown = plots::thin(n, MAX_POINTS, flagged);
     let k = n.div_ceil(MAX_POINTS).max(1);
-    let thin_words =
-        if k == 1 { "all rows shown".to_string() } else { format!("every {k}th row shown and all flagged rows") };
+    let thin_words = if k == 1 {
+        "all rows shown".to_string()
+    } else {
+        format!("every {} row shown and all flagged rows", ordinal(k))
+    };
     let n_flagged = flagged.iter().filter(|f| **f).count();
     let split = |f: &dyn Fn(usize) -> (f64, f64)| {
         let mut a = Vec::new();
@@ -1154,17 +1157,41 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         }
         (a, b)
     };
+    // Gross outliers would squash every residual plot: the scaled-residual axis stops at ±lim and rows
+    // beyond it are drawn at the edge as triangles (they are all flagged, since lim > cutoff).
+    let lim = (3.0 * cutoff).max(8.0);
+    let beyond = scaled.iter().filter(|v| v.abs() > lim).count();
+    let clip = beyond > 0;
+    let y_clip = clip.then_some((-lim * 1.06, lim * 1.06));
+    let edge_words = if clip {
+        format!(
+            "; the axis stops at ±{}, and {} beyond it are drawn at its edge as triangles",
+            short(lim),
+            plural(beyond, "row", "rows")
+        )
+    } else {
+        String::new()
+    };
     let points_layers = |a: Vec<(f64, f64)>, b: Vec<(f64, f64)>, label: &str| {
         let mut v = vec![Layer {
             kind: LayerKind::Points { points: a, shape: Shape::Dot, size: 2, opacity: 0.45 },
             ink: Ink::Robust,
             label: label.to_string(),
         }];
-        if !b.is_empty() {
+        let (inside, edge): (Vec<(f64, f64)>, Vec<(f64, f64)>) = b.into_iter().partition(|p| p.1.abs() <= lim);
+        if !inside.is_empty() {
             v.push(Layer {
-                kind: LayerKind::Points { points: b, shape: Shape::Cross, size: 4, opacity: 1.0 },
+                kind: LayerKind::Points { points: inside, shape: Shape::Cross, size: 4, opacity: 1.0 },
                 ink: Ink::Flag,
                 label: "flagged row".into(),
+            });
+        }
+        if !edge.is_empty() {
+            let edge = edge.into_iter().map(|p| (p.0, p.1.signum() * lim)).collect();
+            v.push(Layer {
+                kind: LayerKind::Points { points: edge, shape: Shape::Triangle, size: 4, opacity: 1.0 },
+                ink: Ink::Flag,
+                label: format!("flagged row beyond ±{} (at the edge)", short(lim)),
             });
         }
         v
@@ -1183,7 +1210,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         id: "fig-7-1".into(),
         title: "Scaled robust residuals against fitted values".into(),
         desc: format!(
-            "Scaled robust residuals of {n} rows against the robust fitted values ({thin_words}), with dashed lines at ±{}; {} beyond them, marked with crosses.",
+            "Scaled robust residuals of {n} rows against the robust fitted values ({thin_words}), with dashed lines at ±{}; {} beyond them, marked with crosses{edge_words}.",
             short(cutoff),
             plural(n_flagged, "row lies", "rows lie")
         ),
@@ -1192,7 +1219,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         layers,
         legend: LegendAt::UpperRight,
         y_include: vec![-cutoff, cutoff],
-        y_range: None,
+        y_range: y_clip,
     })?);
 
     // 7.2 normal QQ plot, plotting positions (i − 0.5)/n.
@@ -1231,7 +1258,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         id: "fig-7-2".into(),
         title: "Normal quantile plot of scaled robust residuals".into(),
         desc: format!(
-            "Sorted scaled robust residuals of {m} rows against standard normal quantiles at plotting positions (i − 0.5)/n; {} points shown (the 25 most extreme at each end, every flagged row and a regular thinning of the rest); the dashed line is y = x.",
+            "Sorted scaled robust residuals of {m} rows against standard normal quantiles at plotting positions (i − 0.5)/n; {} points shown (the 25 most extreme at each end, every flagged row and a regular thinning of the rest); the dashed line is y = x{edge_words}.",
             q_idx.len()
         ),
         x_label: "standard normal quantile".into(),
@@ -1239,7 +1266,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         layers,
         legend: LegendAt::UpperLeft,
         y_include: vec![],
-        y_range: None,
+        y_range: y_clip,
     })?);
 
     // 7.3 horizontal boxplot with Tukey fences.
@@ -1250,7 +1277,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         let whi = inside.iter().copied().fold(q3, f64::max);
         let outside: Vec<f64> = scaled.iter().copied().filter(|v| v.is_finite() && (*v < lf || *v > uf)).collect();
         let out_idx = plots::thin(outside.len(), 600, &[]);
-        let out_pts: Vec<(f64, f64)> = out_idx.iter().map(|&i| (outside[i], 0.5)).collect();
+        let out_pts: Vec<(f64, f64)> = out_idx.iter().map(|&i| (outside[i].clamp(-lim, lim), 0.5)).collect();
         let (y0, y1) = (0.3, 0.7);
         let segs = vec![
             ((q1, y0), (q3, y0)),
@@ -1290,7 +1317,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
             id: "fig-7-3".into(),
             title: "Boxplot of scaled robust residuals".into(),
             desc: format!(
-                "Quartiles {}, {}, {} ({}); fences at {} and {}; whiskers to {} and {}; {} outside the fences.",
+                "Quartiles {}, {}, {} ({}); fences at {} and {}; whiskers to {} and {}; {} outside the fences{}.",
                 fixed(q1, 2),
                 fixed(med, 2),
                 fixed(q3, 2),
@@ -1299,7 +1326,12 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
                 fixed(uf, 2),
                 fixed(wlo, 2),
                 fixed(whi, 2),
-                plural(b.n_outside, "row", "rows")
+                plural(b.n_outside, "row", "rows"),
+                if clip {
+                    format!(" (the axis stops at ±{}; rows beyond it are drawn at its edge)", short(lim))
+                } else {
+                    String::new()
+                }
             ),
             x_label: "scaled robust residual".into(),
             y_label: String::new(),
@@ -1378,7 +1410,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         id: "fig-7-5".into(),
         title: "Scaled robust residuals against leverage".into(),
         desc: format!(
-            "Scaled robust residuals against hat values of the robust design for {} shown rows; the dashed vertical line is 2p/n = {}; {} above it.",
+            "Scaled robust residuals against hat values of the robust design for {} shown rows; the dashed vertical line is 2p/n = {}; {} above it{edge_words}.",
             lev_idx.len(),
             fixed(thr, 3),
             plural(a.sensitivity.leverage.high.len(), "row lies", "rows lie")
@@ -1388,7 +1420,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         layers,
         legend: LegendAt::UpperRight,
         y_include: vec![-cutoff, cutoff],
-        y_range: None,
+        y_range: y_clip,
     })?);
     Ok(DiagnosticsCtx {
         intro: format!(
@@ -1560,4 +1592,16 @@ mod tests {
         assert!(!h.contains("x.png"), "{h}");
         assert!(h.contains("site"));
     }
+}
+
+/// 1st, 2nd, 3rd, 4th, … 11th, 12th, 13th, 21st …
+fn ordinal(k: usize) -> String {
+    let suffix = match (k % 10, k % 100) {
+        (_, 11..=13) => "th",
+        (1, _) => "st",
+        (2, _) => "nd",
+        (3, _) => "rd",
+        _ => "th",
+    };
+    format!("{k}{suffix}")
 }

@@ -277,6 +277,22 @@ fn padded(v: &[f64]) -> (f64, f64) {
     (lo - pad, hi + pad)
 }
 
+/// Stretch the y range so the legend box sits over empty space instead of over the data: the legend
+/// takes about 16 px per entry plus padding of a plot area about HEIGHT − 110 px tall.
+fn legend_headroom(spec: &ChartSpec, y0: f64, y1: f64) -> (f64, f64) {
+    let entries = spec.layers.iter().filter(|l| !l.label.is_empty()).count();
+    if entries == 0 {
+        return (y0, y1);
+    }
+    let plot_px = (HEIGHT as f64 - 110.0).max(100.0);
+    let share = ((16.0 * entries as f64 + 14.0) / plot_px).min(0.6);
+    let span = (y1 - y0) / (1.0 - share);
+    match spec.legend {
+        LegendAt::UpperLeft | LegendAt::UpperRight => (y0, y0 + span),
+        LegendAt::LowerLeft | LegendAt::LowerRight => (y1 - span, y1),
+    }
+}
+
 fn draw_error<E: std::fmt::Debug>(e: E) -> Error {
     Error::new(format!("cannot draw a report figure: {e:?}"))
 }
@@ -285,6 +301,7 @@ fn draw_error<E: std::fmt::Debug>(e: E) -> Error {
 pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
     let ((x0, x1), (ya, yb)) = ranges(spec);
     let (y0, y1) = spec.y_range.filter(|(a, b)| a.is_finite() && b.is_finite() && b > a).unwrap_or((ya, yb));
+    let (y0, y1) = legend_headroom(spec, y0, y1);
     let mut raw = String::new();
     {
         let root = SVGBackend::with_string(&mut raw, (WIDTH, HEIGHT)).into_drawing_area();
