@@ -16,6 +16,10 @@ mod raw;
 mod resolved;
 mod yaml_errors;
 
+/// Text as a double-quoted YAML scalar that reads back as the same text (escapes control characters,
+/// quotes and backslashes). Also the quoting of names in messages.
+pub use check::quote;
+
 /// The shared grid of basis sizes when `selection.basis-sizes` is not given.
 pub const DEFAULT_BASIS_SIZES: [usize; 5] = [4, 5, 6, 7, 8];
 
