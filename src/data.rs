@@ -161,7 +161,13 @@ impl LineCounter<'_> {
             self.offset = 0;
             self.newlines = 0;
         }
-        self.newlines += self.body[self.offset..start].iter().filter(|b| **b == b'\n').count() as u64;
+        // A line ends at `\n`, `\r\n` or a lone `\r` (old Mac files): the csv crate ends records at all
+        // three, so a lone `\r` must count too or two records share a line number (found by
+        // tests/fuzz_props.rs).
+        let body = self.body;
+        self.newlines += (self.offset..start)
+            .filter(|&i| body[i] == b'\n' || (body[i] == b'\r' && body.get(i + 1) != Some(&b'\n')))
+            .count() as u64;
         self.offset = start;
         self.newlines + 1
     }
@@ -211,7 +217,7 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
     let mut reader = csv::ReaderBuilder::new().has_headers(true).flexible(false).from_reader(body);
     let header_record = reader
         .byte_headers()
-        .map_err(|e| csv_error(&ctx, &e, &mut LineCounter { body, offset: 0, newlines: 0 }))?
+        .map_err(|e| csv_error(&ctx, &e, &mut LineCounter { body, offset: 0, newlines: 0 }, false))?
         .clone();
     let mut header = Vec::with_capacity(header_record.len());
     for (j, h) in header_record.iter().enumerate() {
@@ -244,9 +250,15 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
                 listed.push(format!("and {} more", header.len() - MAX_LISTED_COLUMNS));
             }
             let columns = format!("The columns are {}", listed.join(", "));
-            let hint = match nearest(name, header.iter().map(String::as_str)) {
-                Some(s) => format!("did you mean {}? {columns}", quote(s)),
-                None => columns.replacen("The", "the", 1),
+            let spaced = header.iter().find(|h| h.trim() == name && !name.is_empty());
+            let hint = match (spaced, nearest(name, header.iter().map(String::as_str))) {
+                (Some(s), _) => format!(
+                    "the header names {} with spaces around it; remove the spaces in the header line \
+                     (values are trimmed, column names are not)",
+                    quote(s)
+                ),
+                (None, Some(s)) => format!("did you mean {}? {columns}", quote(s)),
+                (None, None) => columns.replacen("The", "the", 1),
             };
             Error::new(format!("there is no column {}", quote(name))).at(format!("{}, line 1", req.display)).hint(hint)
         })
@@ -287,7 +299,11 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
         match reader.read_byte_record(&mut record) {
             Ok(true) => {}
             Ok(false) => break,
-            Err(e) => return Err(csv_error(&ctx, &e, &mut counter)),
+            Err(e) => {
+                // Reached the end of the file: what an unclosed quote does (see `csv_error`).
+                let at_eof = usize::try_from(reader.position().byte()).map_or(true, |b| b >= body.len());
+                return Err(csv_error(&ctx, &e, &mut counter, at_eof));
+            }
         }
         n_read += 1;
         let line = record.position().map_or(0, |p| counter.line_at(p.byte()));
@@ -475,13 +491,23 @@ fn parse_number(ctx: &Ctx, line: u64, column: &str, cell: &[u8]) -> Result<f64> 
     }
 }
 
-fn csv_error(ctx: &Ctx, e: &csv::Error, counter: &mut LineCounter) -> Error {
+fn csv_error(ctx: &Ctx, e: &csv::Error, counter: &mut LineCounter, at_eof: bool) -> Error {
     match e.kind() {
         csv::ErrorKind::UnequalLengths { pos, expected_len, len } => {
             let at = match pos {
                 Some(p) => format!("{}, line {}", ctx.display, counter.line_at(p.byte())),
                 None => ctx.display.to_string(),
             };
+            // The record ran to the end of the file and holds an odd number of quotes: a quote opened
+            // here is never closed and the csv reader took the rest of the file as one value. Say so,
+            // rather than count the fields of a record that is not what the user wrote.
+            let start = pos.as_ref().map_or(0, |p| usize::try_from(p.byte()).unwrap_or(usize::MAX));
+            let quotes = counter.body.get(start..).map_or(0, |b| b.iter().filter(|c| **c == b'"').count());
+            if at_eof && quotes % 2 == 1 {
+                return Error::new("a quoted value that starts on this line is never closed")
+                    .at(at)
+                    .hint("close the quote; write a quote inside a quoted value as two quotes (\"\")");
+            }
             let fields = if *len == 1 { "field" } else { "fields" };
             Error::new(format!("this row has {len} {fields} but the header has {expected_len}"))
                 .at(at)

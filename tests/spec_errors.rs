@@ -114,7 +114,7 @@ fn scalar_spec() {
 fn tab_indentation() {
     assert_eq!(
         err("knotwise: 1\ntitle: x\ndata:\n\tfile: a.csv\n"),
-        "study.yaml, line 4, column 1: this is not valid YAML: found character that cannot start any token, while scanning for the next token\n  hint: indent with spaces: YAML does not allow tabs for indentation"
+        "study.yaml, line 4, column 1: this is not valid YAML: the line is indented with a tab\n  hint: indent with spaces: YAML does not allow tabs for indentation"
     );
 }
 
@@ -321,7 +321,11 @@ fn oversized_spec_is_refused() {
 #[test]
 fn load_names_the_path_as_given() {
     let e = spec::load(Path::new("no/such/study.yaml")).unwrap_err();
-    assert_eq!(e.to_string(), "no/such/study.yaml: cannot read the spec: no such file or directory");
+    assert_eq!(
+        e.to_string(),
+        "no/such/study.yaml: cannot read the spec: no such file or directory\n  \
+         hint: the spec's path is relative to the working folder; check the spelling"
+    );
 }
 
 const FULL: &str = r#"knotwise: 1

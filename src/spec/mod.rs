@@ -16,6 +16,10 @@ mod raw;
 mod resolved;
 mod yaml_errors;
 
+/// Text as a double-quoted YAML scalar that reads back as the same text (escapes control characters,
+/// quotes and backslashes). Also the quoting of names in messages.
+pub use check::quote;
+
 /// The shared grid of basis sizes when `selection.basis-sizes` is not given.
 pub const DEFAULT_BASIS_SIZES: [usize; 5] = [4, 5, 6, 7, 8];
 
@@ -27,7 +31,13 @@ pub const MAX_SPEC_BYTES: u64 = 1024 * 1024;
 /// are resolved against the spec's folder.
 pub fn load(path: &Path) -> Result<Study> {
     let display = path.display().to_string();
-    let meta = std::fs::metadata(path).map_err(|e| Error::io("read the spec", path, &e))?;
+    let meta = std::fs::metadata(path).map_err(|e| {
+        let hint = match e.kind() {
+            std::io::ErrorKind::NotFound => "the spec's path is relative to the working folder; check the spelling",
+            _ => "check the path and that the file can be read",
+        };
+        Error::io("read the spec", path, &e).hint(hint)
+    })?;
     if meta.is_dir() {
         return Err(Error::new("cannot read the spec: it is a directory")
             .at(&display)

@@ -89,6 +89,14 @@ fn found_words(f: &str) -> String {
 fn reword(msg: &str) -> (String, Option<String>) {
     for prefix in ["invalid type: ", "invalid value: "] {
         if let Some(rest) = msg.strip_prefix(prefix) {
+            // A whole number beyond 64 bits: serde_yaml says "integer `N` as u128, expected any YAML
+            // value", which reads as nonsense; say what is wrong with the number instead.
+            if let Some(n) = rest.strip_prefix("integer `").and_then(|r| r.split_once("` as ")).map(|(n, _)| n) {
+                return (
+                    format!("the number {n} is out of range; whole numbers are read from -9223372036854775808 to 18446744073709551615"),
+                    None,
+                );
+            }
             if let Some(i) = rest.rfind(", expected ") {
                 let found = found_words(&rest[..i]);
                 let expected = expected_words(&rest[i + 11..]);
@@ -244,11 +252,20 @@ pub(crate) fn map(ctx: &Ctx, err: &serde_yaml::Error) -> Error {
                 .as_ref()
                 .and_then(|l| ctx.text.lines().nth(l.line().saturating_sub(1)))
                 .is_some_and(|line| line.contains('\t'));
+            let tab_indent = location
+                .as_ref()
+                .and_then(|l| ctx.text.lines().nth(l.line().saturating_sub(1)))
+                .is_some_and(|line| line.trim_start_matches(' ').starts_with('\t'));
             let hint = if line_has_tab {
                 Some("indent with spaces: YAML does not allow tabs for indentation".to_string())
             } else {
                 own_hint
             };
+            if tab_indent {
+                return Error::new("this is not valid YAML: the line is indented with a tab")
+                    .at(at)
+                    .hint(hint.unwrap_or_default());
+            }
             let what = if what.starts_with("the key ") { what } else { format!("this is not valid YAML: {what}") };
             let e = Error::new(what).at(at);
             match hint {
