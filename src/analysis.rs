@@ -104,7 +104,9 @@ pub fn fit_error(e: FitError, names: &[String], context: &str) -> Error {
             let col = names.get(column).cloned().unwrap_or_else(|| format!("#{column}"));
             let with: Vec<String> = aliased_with.iter().filter_map(|&c| names.get(c).cloned()).collect();
             let what = if with.is_empty() {
-                format!("the design is rank deficient: column `{col}` is zero or constant")
+                format!("the design is rank deficient: column `{col}` is zero everywhere")
+            } else if with.len() == 1 && with[0] == "intercept" {
+                format!("the design is rank deficient: column `{col}` is constant (it duplicates the intercept)")
             } else {
                 format!(
                     "the design is rank deficient: column `{col}` is a linear combination of {}",

@@ -44,7 +44,7 @@ pub fn load_frame(study: &Study, spec_display: &str) -> Result<data::Frame> {
                 "the data file's sha256 does not match the pin in the spec\n    pinned:   {pin}\n    computed: {}",
                 frame.sha256
             ))
-            .at(format!("{spec_display}: data.sha256"))
+            .at(format!("{spec_display}, key data.sha256"))
             .hint(
                 "the data changed since the spec was pinned: restore the original file, or update the pin after review",
             ));
@@ -194,10 +194,26 @@ pub fn write_outputs(dir: &Path, files: &[(String, Vec<u8>)]) -> Result<()> {
                 .hint("choose an empty or new folder with --out; knotwise replaces only its own output folders"));
         }
     }
+    // A parent that is a file: name the folder asked for, not the temporary one.
+    let mut ancestor = parent.as_path();
+    while !ancestor.exists() {
+        match ancestor.parent() {
+            Some(p) if !p.as_os_str().is_empty() => ancestor = p,
+            _ => break,
+        }
+    }
+    if ancestor.exists() && !ancestor.is_dir() {
+        return Err(Error::new("cannot create the output folder: a parent is not a directory")
+            .at(dir.display().to_string())
+            .hint(format!("{} is a file; choose another folder with --out", ancestor.display())));
+    }
     let tmp = parent.join(format!(".{name}.tmp-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&tmp);
-    std::fs::create_dir_all(&tmp)
-        .map_err(|e| Error::io("create the output folder", &tmp, &e).hint("check that the folder is writable"))?;
+    std::fs::create_dir_all(&tmp).map_err(|e| {
+        Error::new(format!("cannot create the output folder: {}", crate::error::describe_io(&e)))
+            .at(dir.display().to_string())
+            .hint("check that the folder is writable, or choose another with --out")
+    })?;
     let result = (|| -> Result<()> {
         let mut listed: Vec<(&str, &[u8])> = Vec::new();
         for (file, bytes) in files {
@@ -272,7 +288,9 @@ fn check(spec_path: &Path) -> Result<u8> {
 }
 
 fn read_json(path: &Path) -> Result<Value> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io("read", path, &e))?;
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        Error::io("read", path, &e).hint("give an output folder written by `knotwise run`, or its results.json")
+    })?;
     serde_json::from_str(&text).map_err(|e| Error::new(format!("not valid JSON: {e}")).at(path.display().to_string()))
 }
 

@@ -39,6 +39,12 @@ pub fn warnings(a: &Analysis) -> Vec<String> {
             w.push(format!("The {name} fit {}. Its numbers are not a converged solution.", f.termination.describe()));
         }
     }
+    if sel.robust_criterion_collapsed {
+        w.push(
+            "The robust scale collapsed to zero: more than half the rows are fitted exactly, so the robust criterion is undefined and the robust fit is shown at the classical choice. Check whether the response is computed from the terms."
+                .into(),
+        );
+    }
     if let Some(s) = &sel.s_estimate {
         if !s.termination.is_ok() {
             w.push(format!("The S-estimate start {}.", s.termination.describe()));

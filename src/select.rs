@@ -90,6 +90,9 @@ pub struct Selection {
     pub search: SearchKind,
     pub classical_choice: usize,
     pub robust_choice: usize,
+    /// True when no grid point had a robust criterion (the robust scale collapsed to zero everywhere);
+    /// the robust fit is then the one at the classical choice.
+    pub robust_criterion_collapsed: bool,
     /// The robust scale used by the criterion (shared mode: the richest model's S-scale).
     pub shared_scale: Option<f64>,
     /// Sizes of the model whose S-scale is shared.
@@ -267,7 +270,9 @@ fn argmin(points: &[GridPoint], key: impl Fn(&GridPoint) -> Option<f64>) -> Opti
 #[derive(Default)]
 struct Keeper {
     points: Vec<GridPoint>,
-    classical: Option<(usize, f64, Design, Fit)>,
+    /// The classical best, with the robust fit at the same point (the fallback when no point has a robust
+    /// criterion because the robust scale collapsed everywhere).
+    classical: Option<(usize, f64, Design, Fit, Fit, Option<SEstimate>)>,
     robust: Option<(usize, f64, Design, Fit, Option<SEstimate>)>,
 }
 
@@ -285,10 +290,10 @@ impl Keeper {
                 (false, false) => (None, None),
             };
             if let Some(d) = r_design {
-                self.robust = Some((i, e.point.rbic.unwrap_or(f64::INFINITY), d, robust, s_est));
+                self.robust = Some((i, e.point.rbic.unwrap_or(f64::INFINITY), d, robust.clone(), s_est.clone()));
             }
             if let Some(d) = c_design {
-                self.classical = Some((i, e.point.bic.unwrap_or(f64::INFINITY), d, classical));
+                self.classical = Some((i, e.point.bic.unwrap_or(f64::INFINITY), d, classical, robust, s_est));
             }
         }
         self.points.push(e.point);
@@ -377,16 +382,22 @@ pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustP
     }
 
     let Keeper { points, classical, robust } = kept;
-    let (Some((ci, _, classical_design, classical_fit)), Some((ri, _, robust_design, robust_fit, s_at_point))) =
-        (classical, robust)
-    else {
+    let Some((ci, _, classical_design, classical_fit, robust_at_ci, s_at_ci)) = classical else {
         return Err(SelectError::NonePossible(points));
+    };
+    // No robust criterion anywhere: the robust scale collapsed to zero at every grid point (more than
+    // half the rows fitted exactly). The robust fit is then reported at the classical choice.
+    let robust_criterion_collapsed = robust.is_none();
+    let (ri, robust_design, robust_fit, s_at_point) = match robust {
+        Some((ri, _, d, f, s)) => (ri, d, f, s),
+        None => (ci, classical_design.clone(), robust_at_ci, s_at_ci),
     };
     Ok(Selection {
         points,
         search,
         classical_choice: ci,
         robust_choice: ri,
+        robust_criterion_collapsed,
         shared_scale: ev.shared_scale,
         scale_source,
         s_estimate: s_at_point.or(s_richest),

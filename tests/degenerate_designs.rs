@@ -2,8 +2,7 @@
 //! any output file. Run through the binary (so every stage and the writers are covered) in a scratch
 //! folder, plus library-level checks of the fit where the binary hides the numbers.
 //!
-//! Tests named `known_issue_*` are ignored: they fail until a fix lands in a file owned elsewhere; each
-//! says which file and what fix.
+//! (Former known issues now fixed are kept as regression tests.)
 
 mod common;
 use common::Lcg;
@@ -114,7 +113,7 @@ fn constant_linear_column_is_named() {
     assert_eq!(r.code, 2);
     assert_eq!(
         r.stderr,
-        "error: spec.yaml: the design is rank deficient: column `k` is a linear combination of `intercept`\n  \
+        "error: spec.yaml: the design is rank deficient: column `k` is constant (it duplicates the intercept)\n  \
          hint: remove one of the aliased terms, or check the data for a column that duplicates another\n"
     );
 }
@@ -205,8 +204,8 @@ fn smooth_term_with_three_distinct_values() {
     assert_eq!(
         r.stderr,
         "error: spec.yaml: selection.basis-sizes: no basis size on the grid is possible for these data:\n    \
-         sizes [4]: `x1` has 3 distinct values, fewer than the 4 basis functions of size 4\n    \
-         sizes [5]: `x1` has 3 distinct values, fewer than the 5 basis functions of size 5\n  \
+         x1 = 4: `x1` has 3 distinct values, fewer than the 4 basis functions of size 4\n    \
+         x1 = 5: `x1` has 3 distinct values, fewer than the 5 basis functions of size 5\n  \
          hint: choose smaller basis sizes, or use `knots: uniform` for a column with many tied values\n"
     );
     // As a degree-1 term with k = 3 it is possible (a broken line through three points).
@@ -291,8 +290,8 @@ fn perfect_fit_does_not_panic_or_write_nan() {
     let d = data(40, 0.0, |z, _, _| 3.0 + 2.0 * z);
     let spec = format!("{HEAD}linear:\n  - column: z1\n  - column: z2\nrobust:\n  subsamples: 100\n");
     let r = run("perfect-linear", &spec, &d);
-    // Today: refused (exit 2, nothing written) with "sizes []: no criterion" -- see the known issue below.
-    if r.code == 0 {
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    {
         let v = r.results();
         assert_eq!(v["fits"]["robust"]["termination"]["status"], "scale-collapsed", "{}", r.file("results.json"));
         assert!(r.file("report.html").contains("scale collapsed"), "the report must say the scale collapsed");
@@ -300,16 +299,10 @@ fn perfect_fit_does_not_panic_or_write_nan() {
     let _ = r.stdout;
 }
 
-/// KNOWN ISSUE (src/select.rs + src/analysis.rs, owned elsewhere): an exact linear fit is refused with
-/// "no basis size on the grid is possible for these data: sizes []: no criterion" and a hint about basis
-/// sizes, for a study with no smooth term at all. `select::evaluate` leaves `rbic` empty when the robust
-/// scale is 0, so no point has a robust criterion. Wanted: the run succeeds with the robust fit marked
-/// `scale-collapsed` (the report says so), or at least the message says "the robust scale collapsed to
-/// zero: more than half the rows are fitted exactly" with a hint to check for a response computed from
-/// the terms.
+/// Regression (hostile catalogue): an exact linear fit used to be refused with "no criterion"; the robust
+/// criterion now falls back to the classical choice and the fit is marked `scale-collapsed`.
 #[test]
-#[ignore = "KNOWN ISSUE: needs a fix in src/select.rs (robust criterion when the scale collapses)"]
-fn known_issue_perfect_linear_fit_runs_and_says_the_scale_collapsed() {
+fn perfect_linear_fit_runs_and_says_the_scale_collapsed() {
     let d = data(40, 0.0, |z, _, _| 3.0 + 2.0 * z);
     let spec = format!("{HEAD}linear:\n  - column: z1\n  - column: z2\nrobust:\n  subsamples: 100\n");
     let r = run("perfect-linear-known", &spec, &d);
@@ -318,14 +311,9 @@ fn known_issue_perfect_linear_fit_runs_and_says_the_scale_collapsed() {
     assert!(r.file("report.html").contains("scale collapsed"));
 }
 
-/// KNOWN ISSUE (src/select.rs, owned elsewhere): with a smooth term and an exact fit, the robust scale is
-/// zero at every grid point, `rbic` is left empty and the run is refused with "sizes [4]: no criterion",
-/// which names neither the cause nor a fix. Wanted: the robust criterion falls back to the classical
-/// one (or the selection says "the robust scale collapsed to zero: more than half the rows are fitted
-/// exactly"), the run succeeds, and results.json/report.html show `scale-collapsed`.
+/// Regression (hostile catalogue): an exact fit with a smooth term runs and says the scale collapsed.
 #[test]
-#[ignore = "KNOWN ISSUE: needs a fix in src/select.rs (robust criterion when the scale collapses)"]
-fn known_issue_perfect_fit_with_a_smooth_term_runs() {
+fn perfect_fit_with_a_smooth_term_runs() {
     let d = data(40, 0.0, |z, x, _| 3.0 + 2.0 * z + 0.5 * x);
     let r = run("perfect-smooth", &smooth_spec(""), &d);
     assert_eq!(r.code, 0, "{}", r.stderr);
@@ -333,13 +321,10 @@ fn known_issue_perfect_fit_with_a_smooth_term_runs() {
     assert_eq!(v["fits"]["robust"]["termination"]["status"], "scale-collapsed");
 }
 
-/// KNOWN ISSUE (src/select.rs or src/robust/sest.rs, owned elsewhere): a smooth column on a lattice (6
-/// values) with a response that is not an exact fit (median absolute least-squares residual 3.1) is
-/// refused with "sizes [4]: no criterion": the robust scale of the grid point came out as zero. Either
-/// the S-scale is wrong for these data or the message hides the reason; see the final report.
+/// Regression (hostile catalogue): a smooth column on a lattice (6 values) with a deterministic response
+/// runs (its robust scale may collapse: the response is an exact function of the row number).
 #[test]
-#[ignore = "KNOWN ISSUE: robust scale zero on lattice data; needs a fix in src/select.rs or src/robust"]
-fn known_issue_lattice_smooth_column_runs() {
+fn lattice_smooth_column_runs() {
     let mut s = String::from("y,z1,x1\n");
     for i in 0..40 {
         let x = i % 6;
@@ -351,7 +336,5 @@ fn known_issue_lattice_smooth_column_runs() {
         &s,
     );
     // Either a result or a message that gives a reason per grid point (never a bare "no criterion").
-    if r.code == 2 {
-        assert!(!r.stderr.contains("no criterion"), "KNOWN ISSUE (src/select.rs): {}", r.stderr);
-    }
+    assert_eq!(r.code, 0, "{}", r.stderr);
 }

@@ -205,7 +205,7 @@ fn catalogue() -> Vec<Case> {
             "error: data.csv, line 2, column \"id\": the value is not valid UTF-8 text (bad byte at position 2)\n  hint: save the file as UTF-8\n"),
         case("data-pin-mismatch", &SPEC.replace("file: data.csv",
             "file: data.csv\n  sha256: 0000000000000000000000000000000000000000000000000000000000000000"), g,
-            "error: spec.yaml: data.sha256: the data file's sha256 does not match the pin in the spec\n    pinned:   0000000000000000000000000000000000000000000000000000000000000000\n    computed: 3b6eaaadac8dde94d45c29af583885eedc5e1fdd05f8a28688d2876b029c8587\n  hint: the data changed since the spec was pinned: restore the original file, or update the pin after review\n"),
+            "error: spec.yaml, key data.sha256: the data file's sha256 does not match the pin in the spec\n    pinned:   0000000000000000000000000000000000000000000000000000000000000000\n    computed: 3b6eaaadac8dde94d45c29af583885eedc5e1fdd05f8a28688d2876b029c8587\n  hint: the data changed since the spec was pinned: restore the original file, or update the pin after review\n"),
         // ---------------------------------------------------------------- spec: shape and YAML
         case("spec-empty", "", g,
             "error: spec.yaml: the spec must be a mapping of keys (`knotwise`, `title`, `data`, `response`, ...); it is empty\n  hint: start the spec with `knotwise: 1` and `title: ...` on their own lines, keys at the left margin\n"),
@@ -291,11 +291,8 @@ fn catalogue() -> Vec<Case> {
         case("spec-least-squares-start-with-bisquare", &SPEC.replace("subsamples: 50", "subsamples: 50\n  start: least-squares"), g,
             "error: spec.yaml, line 12, key robust.start: `start: least-squares` needs `loss: huber`; the bisquare loss needs the S-estimate start\n  hint: write `loss: huber`, or use `start: s-estimate`\n"),
         // ---------------------------------------------------------------- output folder
-        // KNOWN ISSUE (fix belongs in src/app.rs, `write_outputs`): the message names the temporary
-        // folder (with the process id) instead of the folder asked for, and the hint does not say that
-        // `blocker` is a file. The wanted text is in `out_parent_is_a_file_names_the_folder_asked_for`.
         case("out-parent-is-a-file", SPEC, g,
-            "error: blocker/.out.tmp-[PID]: cannot create the output folder: a parent is not a directory\n  hint: check that the folder is writable\n").args(&["run", "spec.yaml", "--out", "blocker/out"])
+            "error: blocker/out: cannot create the output folder: a parent is not a directory\n  hint: blocker is a file; choose another folder with --out\n").args(&["run", "spec.yaml", "--out", "blocker/out"])
             .file("blocker", b"not a folder\n"),
         case("out-is-the-data-file", SPEC, g,
             "error: data.csv: the output folder is the data or spec file itself\n  hint: choose another folder with --out\n").args(&["run", "spec.yaml", "--out", "data.csv"]),
@@ -310,13 +307,13 @@ fn catalogue() -> Vec<Case> {
         // ---------------------------------------------------------------- the design
         case("design-too-few-distinct-for-every-size", &spec_with("selection:\n  basis-sizes: [6, 7]\n"),
             &small(&(0..30).map(|i| format!("{},{},{}\n", i, i % 5, i % 4)).collect::<String>()),
-            "error: spec.yaml: selection.basis-sizes: no basis size on the grid is possible for these data:\n    sizes [6]: `x1` has 4 distinct values, fewer than the 6 basis functions of size 6\n    sizes [7]: `x1` has 4 distinct values, fewer than the 7 basis functions of size 7\n  hint: choose smaller basis sizes, or use `knots: uniform` for a column with many tied values\n"),
+            "error: spec.yaml: selection.basis-sizes: no basis size on the grid is possible for these data:\n    x1 = 6: `x1` has 4 distinct values, fewer than the 6 basis functions of size 6\n    x1 = 7: `x1` has 4 distinct values, fewer than the 7 basis functions of size 7\n  hint: choose smaller basis sizes, or use `knots: uniform` for a column with many tied values\n"),
         case("design-identical-linear-columns", &linear_spec("  - column: z1\n  - column: z3\n"),
             &good_with_copy(&good),
             "error: spec.yaml: the design is rank deficient: column `z3` is a linear combination of `z1`\n  hint: remove one of the aliased terms, or check the data for a column that duplicates another\n"),
         case("design-constant-linear-column", &linear_spec("  - column: z1\n  - column: k\n"),
             &good_with_constant(&good),
-            "error: spec.yaml: the design is rank deficient: column `k` is a linear combination of `intercept`\n  hint: remove one of the aliased terms, or check the data for a column that duplicates another\n"),
+            "error: spec.yaml: the design is rank deficient: column `k` is constant (it duplicates the intercept)\n  hint: remove one of the aliased terms, or check the data for a column that duplicates another\n"),
         case("design-too-few-rows", SPEC, &small("1,2,3\n2,3,4\n3,1,2\n4,5,1\n5,2,2\n"),
             "error: spec.yaml: too few rows: 5 rows for 5 model coefficients\n  hint: use fewer terms or smaller basis sizes, or supply more data\n"),
         // ---------------------------------------------------------------- verify and compare
@@ -324,7 +321,7 @@ fn catalogue() -> Vec<Case> {
             "error: elsewhere/manifest.sha256: cannot read the manifest: no such file or directory\n  hint: verify needs a folder written by `knotwise run`\n").args(&["verify", "elsewhere"])
             .setup(|d| std::fs::create_dir(d.join("elsewhere")).unwrap()),
         case("compare-missing-results", SPEC, g,
-            "error: a: cannot read: no such file or directory\n").args(&["compare", "a", "b"]),
+            "error: a: cannot read: no such file or directory\n  hint: give an output folder written by `knotwise run`, or its results.json\n").args(&["compare", "a", "b"]),
         case("compare-negative-tolerance", SPEC, g,
             "error: --rtol/--atol: tolerances must be finite and not negative\n").args(&["compare", "a", "b", "--rtol=-1"]),
         case("compare-not-json", SPEC, g,
@@ -461,14 +458,8 @@ fn catalogue_of_bad_inputs() {
     assert!(failures.is_empty(), "{} of {} cases failed:\n\n{}", failures.len(), cases.len(), failures.join("\n\n"));
 }
 
-/// KNOWN ISSUE, fails until src/app.rs is fixed (owned by another branch; ignored so `cargo test` stays
-/// green). Fix: in `write_outputs`, before creating the temporary folder, walk up from `dir` to the first
-/// existing ancestor; if it is not a folder, return
-/// `Error::new("cannot create the output folder: a parent is not a directory").at(dir.display())
-///  .hint(format!("{} is a file; choose another folder with --out", ancestor.display()))`;
-/// and map any other `create_dir_all` failure with `.at(dir)` rather than the temporary path.
+/// Regression (hostile catalogue): the message names the folder asked for, not the temporary one.
 #[test]
-#[ignore = "KNOWN ISSUE: needs a fix in src/app.rs write_outputs (see the doc comment)"]
 fn out_parent_is_a_file_names_the_folder_asked_for() {
     let d = scratch("known-out-parent");
     std::fs::write(d.join("spec.yaml"), SPEC).unwrap();

@@ -1178,7 +1178,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
             ink: Ink::Robust,
             label: label.to_string(),
         }];
-        let (inside, edge): (Vec<(f64, f64)>, Vec<(f64, f64)>) = b.into_iter().partition(|p| p.1.abs() <= lim);
+        let (inside, edge): (Vec<Point>, Vec<Point>) = b.into_iter().partition(|p| p.1.abs() <= lim);
         if !inside.is_empty() {
             v.push(Layer {
                 kind: LayerKind::Points { points: inside, shape: Shape::Cross, size: 4, opacity: 1.0 },
@@ -1565,6 +1565,18 @@ fn outliers_section(r: &Results) -> OutliersCtx {
     }
 }
 
+/// 1st, 2nd, 3rd, 4th, … 11th, 12th, 13th, 21st …
+fn ordinal(k: usize) -> String {
+    let suffix = match (k % 10, k % 100) {
+        (_, 11..=13) => "th",
+        (1, _) => "st",
+        (2, _) => "nd",
+        (3, _) => "rd",
+        _ => "th",
+    };
+    format!("{k}{suffix}")
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -1592,16 +1604,4 @@ mod tests {
         assert!(!h.contains("x.png"), "{h}");
         assert!(h.contains("site"));
     }
-}
-
-/// 1st, 2nd, 3rd, 4th, … 11th, 12th, 13th, 21st …
-fn ordinal(k: usize) -> String {
-    let suffix = match (k % 10, k % 100) {
-        (_, 11..=13) => "th",
-        (1, _) => "st",
-        (2, _) => "nd",
-        (3, _) => "rd",
-        _ => "th",
-    };
-    format!("{k}{suffix}")
 }
