@@ -134,6 +134,8 @@ pub fn s_estimate(x: &[f64], n: usize, p: usize, y: &[f64], opts: &SOptions) -> 
             search_rows: n,
         });
     }
+    let _timer = super::profile::stage(|| format!("s-estimate n={n} p={p} total"));
+    let search_timer = super::profile::stage(|| "s-estimate random search".into());
     let mut rng = ChaCha8Rng::seed_from_u64(opts.seed);
 
     // The rows of the search.
@@ -223,10 +225,15 @@ pub fn s_estimate(x: &[f64], n: usize, p: usize, y: &[f64], opts: &SOptions) -> 
         return Err(RobustError::AllSubsamplesSingular { tried: attempts });
     }
 
+    drop(search_timer);
     // Final iterations on all rows.
     let mut chosen: Option<(Candidate, Termination)> = None;
     for cand in best {
+        let _t = super::profile::stage(|| "s-estimate final iteration of one candidate".into());
         let (c, term) = iterate_to_convergence(x, n, p, y, cand, opts, tiny);
+        if super::profile::enabled() {
+            eprintln!("knotwise-profile: s-estimate candidate {term:?}");
+        }
         let better = match &chosen {
             None => true,
             Some((b, _)) => c.scale < b.scale,
