@@ -35,11 +35,32 @@ pub fn threads() -> usize {
     })
 }
 
+thread_local! {
+    static IN_WORKER: std::cell::Cell<bool> = const { std::cell::Cell::new(false) };
+}
+
+/// Run `f` as a worker: block helpers called inside it run on the calling thread (no nested threads).
+/// Results are the same either way, since the blocks are fixed.
+pub fn as_worker<R>(f: impl FnOnce() -> R) -> R {
+    let before = IN_WORKER.with(|c| c.replace(true));
+    let out = f();
+    IN_WORKER.with(|c| c.set(before));
+    out
+}
+
+fn available_threads(nb: usize) -> usize {
+    if IN_WORKER.with(|c| c.get()) {
+        1
+    } else {
+        threads().min(nb)
+    }
+}
+
 /// `f(start, end)` for every fixed block of [`BLOCK_ROWS`] rows of 0..n, results in block order. Blocks
 /// are dealt to threads in contiguous runs (a static assignment); each result depends on its block only.
 pub fn map_blocks<T: Send>(n: usize, f: impl Fn(usize, usize) -> T + Sync) -> Vec<T> {
     let nb = n.div_ceil(BLOCK_ROWS);
-    let t = threads().min(nb);
+    let t = available_threads(nb);
     let run = |b: usize| f(b * BLOCK_ROWS, ((b + 1) * BLOCK_ROWS).min(n));
     if t <= 1 {
         return (0..nb).map(run).collect();
@@ -48,7 +69,7 @@ pub fn map_blocks<T: Send>(n: usize, f: impl Fn(usize, usize) -> T + Sync) -> Ve
     std::thread::scope(|s| {
         let run = &run;
         let handles: Vec<_> = (0..t)
-            .map(|k| s.spawn(move || (k * per..((k + 1) * per).min(nb)).map(run).collect::<Vec<T>>()))
+            .map(|k| s.spawn(move || as_worker(|| (k * per..((k + 1) * per).min(nb)).map(run).collect::<Vec<T>>())))
             .collect();
         handles.into_iter().flat_map(|h| h.join().expect("linalg worker thread panicked")).collect()
     })
@@ -64,7 +85,7 @@ pub fn sum_blocks(n: usize, f: impl Fn(usize, usize) -> f64 + Sync) -> f64 {
 pub fn fill_blocks(out: &mut [f64], f: impl Fn(usize, &mut [f64]) + Sync) {
     let n = out.len();
     let nb = n.div_ceil(BLOCK_ROWS);
-    let t = threads().min(nb);
+    let t = available_threads(nb);
     if t <= 1 {
         f(0, out);
         return;
@@ -73,14 +94,23 @@ pub fn fill_blocks(out: &mut [f64], f: impl Fn(usize, &mut [f64]) + Sync) {
     std::thread::scope(|s| {
         let f = &f;
         for (k, part) in out.chunks_mut(per).enumerate() {
-            s.spawn(move || f(k * per, part));
+            s.spawn(move || as_worker(|| f(k * per, part)));
         }
     });
 }
 
 fn all_finite(v: &[f64]) -> bool {
-    // Summing v·0 is NaN exactly when some v is non-finite; branch-free, so it vectorises.
-    v.iter().fold(0.0, |a, &b| a + b * 0.0) == 0.0
+    // v·0 is NaN exactly when v is non-finite; four independent accumulators keep the loop from being
+    // one long chain of dependent additions.
+    let mut acc = [0.0f64; 4];
+    let mut chunks = v.chunks_exact(4);
+    for c in &mut chunks {
+        for (a, &b) in acc.iter_mut().zip(c) {
+            *a += b * 0.0;
+        }
+    }
+    let tail = chunks.remainder().iter().fold(0.0, |a, &b| a + b * 0.0);
+    acc.iter().sum::<f64>() + tail == 0.0
 }
 
 /// Relative tolerance of the rank test: column j is deficient when |R_jj| <= RANK_TOL · ||X_j||_w,
@@ -451,73 +481,85 @@ pub fn normal_solve(x: &[f64], n: usize, p: usize, y: &[f64], w: &[f64]) -> Resu
 }
 
 /// Upper triangle of [X'WX | X'Wy] over rows lo..hi (row-major, width p + 1) and whether those rows
-/// of x are finite. Rows with zero weight are skipped; the others are taken four at a time.
+/// of x are finite.
+///
+/// Designs with B-spline and dummy columns are mostly constant per column: a centred basis column
+/// equals −mean outside the support of its function, a dummy 0. So each column j gets a baseline c_j
+/// (the most frequent value among the block's first rows) and the rows are split as x_i = d_i + c with
+/// d_i sparse (exact zeros where x_ij = c_j); then, exactly in algebra,
+/// X'WX = Σ w d d' + (Σ w d) c' + c (Σ w d)' + (Σ w) c c' and X'Wy = Σ w y d + (Σ w y) c,
+/// which costs (nonzeros of d_i)² per row instead of p². Any baseline gives the same matrix up to
+/// rounding; a good one only makes it cheaper. Rows with zero weight are skipped.
 fn xtwx_block(x: &[f64], p: usize, y: &[f64], w: &[f64], lo: usize, hi: usize) -> (Vec<f64>, bool) {
     let width = p + 1;
     let mut part = vec![0.0; p * width];
-    let finite = all_finite(&x[lo * p..hi * p]);
-    if !finite {
+    if !all_finite(&x[lo * p..hi * p]) {
         return (part, false);
     }
-    let mut rows: [usize; 4] = [0; 4];
-    let mut k = 0;
-    let mut a = [vec![0.0; p], vec![0.0; p], vec![0.0; p], vec![0.0; p]];
-    let mut flush = |rows: &[usize], a: &mut [Vec<f64>; 4]| {
-        if rows.len() == 4 {
-            let r0 = &x[rows[0] * p..rows[0] * p + p];
-            let r1 = &x[rows[1] * p..rows[1] * p + p];
-            let r2 = &x[rows[2] * p..rows[2] * p + p];
-            let r3 = &x[rows[3] * p..rows[3] * p + p];
-            for (t, &i) in rows.iter().enumerate() {
-                let wi = w[i];
-                for (d, v) in a[t].iter_mut().zip(&x[i * p..i * p + p]) {
-                    *d = wi * v;
-                }
-            }
-            let wy = [w[rows[0]] * y[rows[0]], w[rows[1]] * y[rows[1]], w[rows[2]] * y[rows[2]], w[rows[3]] * y[rows[3]]];
-            for j in 0..p {
-                let (a0, a1, a2, a3) = (a[0][j], a[1][j], a[2][j], a[3][j]);
-                let dst = &mut part[j * width..(j + 1) * width];
-                let (dst, rhs) = dst.split_at_mut(p);
-                for ((((d, &u0), &u1), &u2), &u3) in
-                    dst[j..].iter_mut().zip(&r0[j..]).zip(&r1[j..]).zip(&r2[j..]).zip(&r3[j..])
-                {
-                    *d += a0 * u0 + a1 * u1 + a2 * u2 + a3 * u3;
-                }
-                rhs[0] += r0[j] * wy[0] + r1[j] * wy[1] + r2[j] * wy[2] + r3[j] * wy[3];
-            }
-        } else {
-            for &i in rows {
-                let row = &x[i * p..(i + 1) * p];
-                let wi = w[i];
-                let wy = wi * y[i];
-                for j in 0..p {
-                    let wxj = wi * row[j];
-                    if wxj == 0.0 {
-                        continue;
-                    }
-                    let dst = &mut part[j * width..(j + 1) * width];
-                    for (d, &u) in dst[j..p].iter_mut().zip(&row[j..]) {
-                        *d += wxj * u;
-                    }
-                    dst[p] += row[j] * wy;
-                }
-            }
-        }
-    };
+    let c = block_baseline(x, p, lo, hi);
+    let mut sum_wd = vec![0.0; p];
+    let mut sum_w = 0.0;
+    let mut sum_wy = 0.0;
+    let mut idx = vec![0usize; p];
+    let mut val = vec![0.0; p];
     for i in lo..hi {
-        if w[i] == 0.0 {
+        let wi = w[i];
+        if wi == 0.0 {
             continue;
         }
-        rows[k] = i;
-        k += 1;
-        if k == 4 {
-            flush(&rows, &mut a);
-            k = 0;
+        let row = &x[i * p..(i + 1) * p];
+        let mut m = 0;
+        for j in 0..p {
+            let d = row[j] - c[j];
+            if d != 0.0 {
+                idx[m] = j;
+                val[m] = d;
+                m += 1;
+            }
+        }
+        let wy = wi * y[i];
+        sum_w += wi;
+        sum_wy += wy;
+        for a in 0..m {
+            let ja = idx[a];
+            let wd = wi * val[a];
+            sum_wd[ja] += wd;
+            let dst = &mut part[ja * width..(ja + 1) * width];
+            for b in a..m {
+                dst[idx[b]] += wd * val[b];
+            }
+            dst[p] += val[a] * wy;
         }
     }
-    flush(&rows[..k], &mut a);
+    // Add the baseline terms to the upper triangle.
+    for j in 0..p {
+        let dst = &mut part[j * width..(j + 1) * width];
+        for k in j..p {
+            dst[k] += sum_wd[j] * c[k] + c[j] * sum_wd[k] + sum_w * c[j] * c[k];
+        }
+        dst[p] += sum_wy * c[j];
+    }
     (part, true)
+}
+
+/// Per column, the most frequent value among the first rows of the block (ties: the earliest), or 0
+/// when no value repeats.
+fn block_baseline(x: &[f64], p: usize, lo: usize, hi: usize) -> Vec<f64> {
+    const PROBE: usize = 16;
+    let rows = (hi - lo).min(PROBE);
+    (0..p)
+        .map(|j| {
+            let vals: Vec<f64> = (lo..lo + rows).map(|i| x[i * p + j]).collect();
+            let mut best = (0.0, 1usize);
+            for (a, &v) in vals.iter().enumerate() {
+                let count = vals[a..].iter().filter(|&&u| u == v).count();
+                if count > best.1 {
+                    best = (v, count);
+                }
+            }
+            best.0
+        })
+        .collect()
 }
 
 /// In-place Cholesky of the upper triangle of `a` (p × (p+1), last column the right-hand side) and the

@@ -256,10 +256,45 @@ fn argmin(points: &[Evaluated], key: impl Fn(&GridPoint) -> Option<f64>) -> Opti
     best.map(|(i, _)| i)
 }
 
+/// Keep the designs and fits only of the points that can still be chosen (the first minimum of each
+/// criterion so far: a later point replaces it only when strictly smaller), so at most two grid
+/// points' designs stay alive besides the one being evaluated.
+fn prune(evaluated: &mut [Evaluated]) {
+    let ci = argmin(evaluated, |p| p.bic);
+    let ri = argmin(evaluated, |p| p.rbic);
+    for (i, e) in evaluated.iter_mut().enumerate() {
+        if Some(i) != ri {
+            e.robust = None;
+            if Some(i) != ci {
+                e.classical = None;
+            }
+        }
+    }
+}
+
 /// Run the selection.
 pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustPlan) -> Result<Selection, SelectError> {
+    select_with_progress(frame, terms, spec, plan, &|_, _| {})
+}
+
+/// [`select`], calling `progress(done, total)` after each step (the shared S-estimate, then each grid
+/// point's classical and robust fits). `total` is the number of steps planned so far (the coordinate-wise
+/// search learns its length as it goes). The callback never affects the result.
+pub fn select_with_progress(
+    frame: &Frame,
+    terms: &ModelTerms,
+    spec: &GridSpec,
+    plan: &RobustPlan,
+    progress: &dyn Fn(usize, usize),
+) -> Result<Selection, SelectError> {
     let n_smooth = terms.smooth.len();
     let (search, mut candidates) = candidate_points(spec, n_smooth);
+    let shared_step = usize::from(plan.method.needs_s_estimate() && plan.scale_mode == ScaleMode::Shared);
+    let planned = |done: usize| {
+        let grid = if search == SearchKind::CoordinateWise { spec.shared.len() } else { candidates.len() };
+        (shared_step + grid).max(done)
+    };
+    progress(0, planned(0));
     let lists: Vec<Vec<usize>> =
         spec.per_term.iter().map(|g| g.clone().unwrap_or_else(|| spec.shared.clone())).collect();
     let mut ev = Evaluator { frame, terms, spec, plan, shared_scale: None, anchor: None };
@@ -290,7 +325,13 @@ pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustP
             s_richest = Some(s);
             break;
         }
+        progress(1, planned(1));
     }
+    let step = |evaluated: &mut Vec<Evaluated>| {
+        prune(evaluated);
+        let done = shared_step + evaluated.len();
+        progress(done, planned(done));
+    };
 
     let mut evaluated: Vec<Evaluated> = Vec::new();
     if search == SearchKind::CoordinateWise {
@@ -298,6 +339,7 @@ pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustP
         let shared_points: Vec<Vec<usize>> = spec.shared.iter().map(|&k| vec![k; n_smooth]).collect();
         for s in &shared_points {
             evaluated.push(ev.evaluate(s)?);
+            step(&mut evaluated);
         }
         for which in 0..2 {
             let key = |p: &GridPoint| if which == 0 { p.bic } else { p.rbic };
@@ -310,6 +352,7 @@ pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustP
                         s[t] = k;
                         if !evaluated.iter().any(|e| e.point.sizes == s) {
                             evaluated.push(ev.evaluate(&s)?);
+                            step(&mut evaluated);
                         }
                     }
                     let best = evaluated
@@ -330,6 +373,7 @@ pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustP
     } else {
         for s in &candidates {
             evaluated.push(ev.evaluate(s)?);
+            step(&mut evaluated);
         }
     }
 
@@ -340,7 +384,11 @@ pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustP
     };
     let points: Vec<GridPoint> = evaluated.iter().map(|e| e.point.clone()).collect();
     let mut slots: Vec<Option<Evaluated>> = evaluated.into_iter().map(Some).collect();
-    let take_c = slots[ci].as_ref().and_then(|e| e.classical.clone());
+    let take_c = if ci == ri {
+        slots[ci].as_ref().and_then(|e| e.classical.clone())
+    } else {
+        slots[ci].take().and_then(|e| e.classical)
+    };
     let r_eval = slots[ri].take();
     let (Some((classical_design, classical_fit)), Some(r_eval)) = (take_c, r_eval) else {
         return Err(SelectError::NonePossible(points));
