@@ -140,10 +140,20 @@ pub fn fit_error(e: FitError, names: &[String], context: &str) -> Error {
 
 /// Run the numerical pipeline on a loaded frame.
 pub fn analyse(study: Study, frame: Frame, spec_display: &str) -> Result<Analysis> {
+    analyse_with_progress(study, frame, spec_display, &|_, _| {})
+}
+
+/// [`analyse`], reporting selection progress as (steps done, steps planned).
+pub fn analyse_with_progress(
+    study: Study,
+    frame: Frame,
+    spec_display: &str,
+    progress: &dyn Fn(usize, usize),
+) -> Result<Analysis> {
     let terms = model_terms(&study);
     let grid = grid_spec(&study);
     let plan = robust_plan(&study);
-    let selection = match select::select(&frame, &terms, &grid, &plan) {
+    let selection = match select::select_with_progress(&frame, &terms, &grid, &plan, progress) {
         Ok(s) => s,
         Err(SelectError::NonePossible(points)) => {
             let reasons: Vec<String> = points

@@ -61,10 +61,16 @@ pub struct RunOutputs {
 }
 
 /// Run the whole study in memory. `spec_dir_from_out` is written into rerun.json.
-pub fn compute(study: Study, spec_bytes: &[u8], spec_display: &str, rerun_json: String) -> Result<RunOutputs> {
+pub fn compute(
+    study: Study,
+    spec_bytes: &[u8],
+    spec_display: &str,
+    rerun_json: String,
+    progress: &dyn Fn(usize, usize),
+) -> Result<RunOutputs> {
     let resolved = study.to_resolved_yaml();
     let frame = load_frame(&study, spec_display)?;
-    let analysis = analysis::analyse(study, frame, spec_display)?;
+    let analysis = analysis::analyse_with_progress(study, frame, spec_display, progress)?;
     let results = outputs::results(&analysis, &outputs::Inputs { spec_bytes, resolved_yaml: &resolved });
     let rows = outputs::rows_csv(&analysis);
     let json =
@@ -154,8 +160,19 @@ fn run(spec_path: &Path, out: Option<&Path>, strict: bool, quiet: bool) -> Resul
         "spec-file": relative(&out_abs, &normalise(&absolute(spec_path)?)),
     });
     let rerun_json = serde_json::to_string_pretty(&rerun).unwrap_or_default() + "\n";
-    let _ = quiet;
-    let outputs = compute(study, &spec_bytes, &spec_path.display().to_string(), rerun_json)?;
+    // A progress bar on stderr for grid points × fits; hidden with --quiet or when stderr is not a terminal.
+    let bar = if quiet || !std::io::IsTerminal::is_terminal(&std::io::stderr()) {
+        indicatif::ProgressBar::hidden()
+    } else {
+        indicatif::ProgressBar::new(0).with_message("fitting the selection grid")
+    };
+    let progress = |done: usize, total: usize| {
+        bar.set_length(total as u64);
+        bar.set_position(done as u64);
+    };
+    let outputs = compute(study, &spec_bytes, &spec_path.display().to_string(), rerun_json, &progress);
+    bar.finish_and_clear();
+    let outputs = outputs?;
     write_outputs(&out_dir, &outputs.files)?;
     let r = &outputs.results;
     let mut msg = format!(

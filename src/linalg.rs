@@ -16,6 +16,103 @@
 /// the order of every floating-point operation is independent of n's factorisation and of threads.
 pub const CHUNK_ROWS: usize = 256;
 
+/// Rows per reduction block. Every reduction over rows (X'WX, the QR factor, sums of squares and of ρ)
+/// is computed block by block, each block on its own from its first row, and the block results are
+/// combined in block order: the blocks are fixed by n alone, so the answer is bit-identical whatever
+/// the number of threads, which only decides which thread computes which blocks.
+pub const BLOCK_ROWS: usize = 4096;
+
+/// Worker threads for row-block work: `KNOTWISE_THREADS` when set to a positive integer, otherwise the
+/// machine's available parallelism. Affects speed only, never a result.
+pub fn threads() -> usize {
+    static T: std::sync::OnceLock<usize> = std::sync::OnceLock::new();
+    *T.get_or_init(|| {
+        std::env::var("KNOTWISE_THREADS")
+            .ok()
+            .and_then(|v| v.trim().parse::<usize>().ok())
+            .filter(|&t| t > 0)
+            .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |t| t.get()))
+    })
+}
+
+thread_local! {
+    static IN_WORKER: std::cell::Cell<bool> = const { std::cell::Cell::new(false) };
+}
+
+/// Run `f` as a worker: block helpers called inside it run on the calling thread (no nested threads).
+/// Results are the same either way, since the blocks are fixed.
+pub fn as_worker<R>(f: impl FnOnce() -> R) -> R {
+    let before = IN_WORKER.with(|c| c.replace(true));
+    let out = f();
+    IN_WORKER.with(|c| c.set(before));
+    out
+}
+
+fn available_threads(nb: usize) -> usize {
+    if IN_WORKER.with(|c| c.get()) {
+        1
+    } else {
+        threads().min(nb)
+    }
+}
+
+/// `f(start, end)` for every fixed block of [`BLOCK_ROWS`] rows of 0..n, results in block order. Blocks
+/// are dealt to threads in contiguous runs (a static assignment); each result depends on its block only.
+pub fn map_blocks<T: Send>(n: usize, f: impl Fn(usize, usize) -> T + Sync) -> Vec<T> {
+    let nb = n.div_ceil(BLOCK_ROWS);
+    let t = available_threads(nb);
+    let run = |b: usize| f(b * BLOCK_ROWS, ((b + 1) * BLOCK_ROWS).min(n));
+    if t <= 1 {
+        return (0..nb).map(run).collect();
+    }
+    let per = nb.div_ceil(t);
+    std::thread::scope(|s| {
+        let run = &run;
+        let handles: Vec<_> = (0..t)
+            .map(|k| s.spawn(move || as_worker(|| (k * per..((k + 1) * per).min(nb)).map(run).collect::<Vec<T>>())))
+            .collect();
+        handles.into_iter().flat_map(|h| h.join().expect("linalg worker thread panicked")).collect()
+    })
+}
+
+/// Σ over blocks of `f(start, end)`, added in block order (see [`BLOCK_ROWS`]).
+pub fn sum_blocks(n: usize, f: impl Fn(usize, usize) -> f64 + Sync) -> f64 {
+    map_blocks(n, f).into_iter().fold(0.0, |a, b| a + b)
+}
+
+/// `f(start, out)` on consecutive blocks of `out` (block b starts at row b·[`BLOCK_ROWS`]); for
+/// elementwise work whose result does not depend on how the rows are split.
+pub fn fill_blocks(out: &mut [f64], f: impl Fn(usize, &mut [f64]) + Sync) {
+    let n = out.len();
+    let nb = n.div_ceil(BLOCK_ROWS);
+    let t = available_threads(nb);
+    if t <= 1 {
+        f(0, out);
+        return;
+    }
+    let per = nb.div_ceil(t) * BLOCK_ROWS;
+    std::thread::scope(|s| {
+        let f = &f;
+        for (k, part) in out.chunks_mut(per).enumerate() {
+            s.spawn(move || as_worker(|| f(k * per, part)));
+        }
+    });
+}
+
+fn all_finite(v: &[f64]) -> bool {
+    // v·0 is NaN exactly when v is non-finite; four independent accumulators keep the loop from being
+    // one long chain of dependent additions.
+    let mut acc = [0.0f64; 4];
+    let mut chunks = v.chunks_exact(4);
+    for c in &mut chunks {
+        for (a, &b) in acc.iter_mut().zip(c) {
+            *a += b * 0.0;
+        }
+    }
+    let tail = chunks.remainder().iter().fold(0.0, |a, &b| a + b * 0.0);
+    acc.iter().sum::<f64>() + tail == 0.0
+}
+
 /// Relative tolerance of the rank test: column j is deficient when |R_jj| <= RANK_TOL · ||X_j||_w,
 /// with ||X_j||_w the (weighted) Euclidean norm of column j. |R_jj| is the distance of column j from
 /// the span of columns 0..j (Golub & Van Loan 1996, §5.4, from memory), so the test asks whether
@@ -90,13 +187,16 @@ fn upper_inverse(r: &[f64], p: usize) -> Vec<f64> {
     inv
 }
 
+/// Shape asserts and the cheap checks (y, weights, positive rows). The check that x is finite is fused
+/// into the block kernels, which read every row anyway; when there are too few rows it is done here so
+/// that non-finite data is still reported first.
 fn check_inputs(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>) -> Result<usize, LinalgError> {
     assert_eq!(x.len(), n * p, "linalg: x has {} entries, expected n·p = {}", x.len(), n * p);
     assert_eq!(y.len(), n, "linalg: y has {} entries, expected n = {n}", y.len());
     if let Some(w) = w {
         assert_eq!(w.len(), n, "linalg: w has {} entries, expected n = {n}", w.len());
     }
-    if x.iter().chain(y.iter()).any(|v| !v.is_finite()) {
+    if !all_finite(y) {
         return Err(LinalgError::NonFinite);
     }
     let positive = match w {
@@ -111,6 +211,9 @@ fn check_inputs(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>) -> 
         }
     };
     if positive < p {
+        if !all_finite(x) {
+            return Err(LinalgError::NonFinite);
+        }
         return Err(LinalgError::TooFewRows { rows: positive, columns: p });
     }
     Ok(positive)
@@ -140,33 +243,35 @@ pub fn qr_solve_chunked(
     check_inputs(x, n, p, y, w)?;
     let chunk = chunk.max(1);
     let width = p + 1; // augmented with y
-                       // Work array: rows 0..p hold [R | Q'y head]; rows p..p+chunk hold the incoming block.
-    let mut a = vec![0.0; (p + chunk) * width];
-    let mut colnorm2 = vec![0.0; p];
 
-    let mut i = 0;
-    while i < n {
-        // Fill the block with the next `chunk` positively weighted rows, scaled by sqrt(w).
-        let mut m = 0;
-        while i < n && m < chunk {
-            let wi = w.map_or(1.0, |w| w[i]);
-            if wi > 0.0 {
-                let sw = wi.sqrt();
-                let dst = &mut a[(p + m) * width..(p + m + 1) * width];
-                for j in 0..p {
-                    let v = sw * x[i * p + j];
-                    dst[j] = v;
-                    colnorm2[j] += v * v;
-                }
-                dst[p] = sw * y[i];
-                m += 1;
-            }
-            i += 1;
+    // Each block of BLOCK_ROWS rows is triangularised on its own; the block factors are then merged in
+    // block order by stacking each under the running factor (a tall-skinny QR). With one block this is
+    // exactly the plain streaming QR.
+    let blocks = map_blocks(n, |lo, hi| qr_block(x, p, y, w, lo, hi, chunk));
+    if blocks.iter().any(|b| !b.finite) {
+        return Err(LinalgError::NonFinite);
+    }
+    let mut colnorm2 = vec![0.0; p];
+    let mut acc: Option<Vec<f64>> = None;
+    let mut work = vec![0.0; 2 * p * width];
+    for b in blocks {
+        for (c, v) in colnorm2.iter_mut().zip(&b.colnorm2) {
+            *c += v;
         }
-        if m > 0 {
-            triangularise_block(&mut a, p, m);
+        if b.rows == 0 {
+            continue;
+        }
+        match acc.as_mut() {
+            None => acc = Some(b.a),
+            Some(a) => {
+                work[..p * width].copy_from_slice(a);
+                work[p * width..].copy_from_slice(&b.a);
+                triangularise_block(&mut work, p, p);
+                a.copy_from_slice(&work[..p * width]);
+            }
         }
     }
+    let a = acc.unwrap_or_else(|| vec![0.0; p * width]);
 
     let r: Vec<f64> = (0..p).flat_map(|row| a[row * width..row * width + p].iter().copied()).collect();
     let qty: Vec<f64> = (0..p).map(|row| a[row * width + p]).collect();
@@ -196,11 +301,57 @@ pub fn qr_solve_chunked(
     Ok(LeastSquares { coef, rss, r, p })
 }
 
+/// One block's triangular factor [R | Q'y] (p × (p+1)), column sums of squares and row count.
+struct BlockQr {
+    a: Vec<f64>,
+    colnorm2: Vec<f64>,
+    rows: usize,
+    finite: bool,
+}
+
+/// Streaming Householder QR of rows lo..hi in chunks of `chunk` positively weighted rows.
+fn qr_block(x: &[f64], p: usize, y: &[f64], w: Option<&[f64]>, lo: usize, hi: usize, chunk: usize) -> BlockQr {
+    let width = p + 1;
+    // Work array: rows 0..p hold [R | Q'y head]; rows p..p+chunk hold the incoming block.
+    let mut a = vec![0.0; (p + chunk) * width];
+    let mut colnorm2 = vec![0.0; p];
+    let finite = all_finite(&x[lo * p..hi * p]);
+    let mut rows = 0;
+    let mut i = lo;
+    while i < hi {
+        // Fill the block with the next `chunk` positively weighted rows, scaled by sqrt(w).
+        let mut m = 0;
+        while i < hi && m < chunk {
+            let wi = w.map_or(1.0, |w| w[i]);
+            if wi > 0.0 {
+                let sw = wi.sqrt();
+                let dst = &mut a[(p + m) * width..(p + m + 1) * width];
+                let src = &x[i * p..(i + 1) * p];
+                for ((d, s), c) in dst[..p].iter_mut().zip(src).zip(colnorm2.iter_mut()) {
+                    let v = sw * s;
+                    *d = v;
+                    *c += v * v;
+                }
+                dst[p] = sw * y[i];
+                m += 1;
+            }
+            i += 1;
+        }
+        if m > 0 && finite {
+            triangularise_block(&mut a, p, m);
+        }
+        rows += m;
+    }
+    a.truncate(p * width);
+    BlockQr { a, colnorm2, rows, finite }
+}
+
 /// Re-triangularise [R; B] where R (rows 0..p of `a`) is upper triangular and B (rows p..p+m) is dense,
 /// by one Householder reflection per column acting on row j of R and the m block rows only (the rows
 /// j+1..p of R are zero in column j). The y column rides along.
 fn triangularise_block(a: &mut [f64], p: usize, m: usize) {
     let width = p + 1;
+    let mut f = vec![0.0; width];
     for j in 0..p {
         let top = a[j * width + j];
         // Scaled norm to avoid overflow/underflow in the sum of squares.
@@ -227,22 +378,34 @@ fn triangularise_block(a: &mut [f64], p: usize, m: usize) {
         if vtv == 0.0 {
             continue;
         }
-        for k in (j + 1)..width {
-            let mut s = v0 * a[j * width + k];
-            for b in 0..m {
-                s += a[(p + b) * width + j] * a[(p + b) * width + k];
-            }
-            let f = 2.0 * s / vtv;
-            a[j * width + k] -= f * v0;
-            for b in 0..m {
-                let vb = a[(p + b) * width + j];
-                a[(p + b) * width + k] -= f * vb;
-            }
+        // Row-oriented: for every column k > j at once, s_k = v0·a[j][k] + Σ_b a[b][j]·a[b][k] (rows b
+        // in order, so each s_k is summed exactly as a column-by-column loop would), then the update.
+        let (head, block) = a.split_at_mut(p * width);
+        let rowj = &mut head[j * width..(j + 1) * width];
+        let fk = &mut f[j + 1..];
+        for (s, &v) in fk.iter_mut().zip(&rowj[j + 1..]) {
+            *s = v0 * v;
         }
-        a[j * width + j] = alpha;
         for b in 0..m {
-            a[(p + b) * width + j] = 0.0;
+            let row = &block[b * width..(b + 1) * width];
+            let vb = row[j];
+            for (s, &v) in fk.iter_mut().zip(&row[j + 1..]) {
+                *s += vb * v;
+            }
         }
+        for (s, v) in fk.iter_mut().zip(rowj[j + 1..].iter_mut()) {
+            *s = 2.0 * *s / vtv;
+            *v -= *s * v0;
+        }
+        for b in 0..m {
+            let row = &mut block[b * width..(b + 1) * width];
+            let vb = row[j];
+            for (s, v) in fk.iter().zip(row[j + 1..].iter_mut()) {
+                *v -= s * vb;
+            }
+            row[j] = 0.0;
+        }
+        rowj[j] = alpha;
     }
 }
 
@@ -265,71 +428,138 @@ fn aliased_columns(r: &[f64], p: usize, j: usize, colnorm2: &[f64]) -> Vec<usize
     (0..j).filter(|&i| c[i].abs() * colnorm2[i].sqrt() > ALIAS_TOL * normj).collect()
 }
 
-/// Σ w_i (y_i − x_i'b)², summed in row order.
+/// Σ w_i (y_i − x_i'b)², summed in row order within each block and over blocks in block order.
 fn weighted_rss(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>, coef: &[f64]) -> f64 {
-    let mut rss = 0.0;
-    for i in 0..n {
-        let wi = w.map_or(1.0, |w| w[i]);
-        if wi == 0.0 {
-            continue;
+    sum_blocks(n, |lo, hi| {
+        let mut rss = 0.0;
+        for i in lo..hi {
+            let wi = w.map_or(1.0, |w| w[i]);
+            if wi == 0.0 {
+                continue;
+            }
+            let e = y[i] - dot(&x[i * p..(i + 1) * p], coef);
+            rss += wi * e * e;
         }
-        let row = &x[i * p..(i + 1) * p];
-        let mut fit = 0.0;
-        for j in 0..p {
-            fit += row[j] * coef[j];
-        }
-        let e = y[i] - fit;
-        rss += wi * e * e;
+        rss
+    })
+}
+
+/// x'b summed in index order.
+#[inline]
+fn dot(row: &[f64], coef: &[f64]) -> f64 {
+    let mut s = 0.0;
+    for (a, b) in row.iter().zip(coef) {
+        s += a * b;
     }
-    rss
+    s
 }
 
 /// Weighted normal equations X'WX b = X'Wy by Cholesky, for inner IRLS steps where speed matters.
 ///
-/// X'WX and X'Wy are accumulated over fixed chunks of [`CHUNK_ROWS`] rows, each chunk's partial sums
-/// added to the total in chunk order. When the Cholesky factorisation meets a pivot below
-/// 1e-12 × (the corresponding diagonal of X'WX) — numerically rank deficient in the squared problem —
-/// the solve falls back to [`qr_solve`], which either succeeds with more accuracy or names the aliased
-/// columns.
+/// The upper triangle of [X'WX | X'Wy] is accumulated over the fixed blocks of [`BLOCK_ROWS`] rows
+/// (in parallel), each block four rows at a time, and the block sums are added in block order. When the
+/// Cholesky factorisation meets a pivot below 1e-12 × (the corresponding diagonal of X'WX) —
+/// numerically rank deficient in the squared problem — the solve falls back to [`qr_solve`], which
+/// either succeeds with more accuracy or names the aliased columns.
 pub fn normal_solve(x: &[f64], n: usize, p: usize, y: &[f64], w: &[f64]) -> Result<Vec<f64>, LinalgError> {
     check_inputs(x, n, p, y, Some(w))?;
     let width = p + 1;
-    // Upper triangle of [X'WX | X'Wy], row-major width p+1.
+    let parts = map_blocks(n, |lo, hi| xtwx_block(x, p, y, w, lo, hi));
+    if parts.iter().any(|(_, finite)| !finite) {
+        return Err(LinalgError::NonFinite);
+    }
     let mut total = vec![0.0; p * width];
-    let mut part = vec![0.0; p * width];
-    let mut start = 0;
-    while start < n {
-        let end = (start + CHUNK_ROWS).min(n);
-        part.iter_mut().for_each(|v| *v = 0.0);
-        for i in start..end {
-            let wi = w[i];
-            if wi == 0.0 {
-                continue;
-            }
-            let row = &x[i * p..(i + 1) * p];
-            let wy = wi * y[i];
-            for j in 0..p {
-                let wxj = wi * row[j];
-                if wxj == 0.0 {
-                    continue;
-                }
-                let dst = &mut part[j * width..(j + 1) * width];
-                for k in j..p {
-                    dst[k] += wxj * row[k];
-                }
-                dst[p] += row[j] * wy;
-            }
-        }
+    for (part, _) in &parts {
         for (t, v) in total.iter_mut().zip(part.iter()) {
             *t += *v;
         }
-        start = end;
     }
-
     match cholesky_solve(&mut total, p) {
         Some(coef) if coef.iter().all(|c| c.is_finite()) => Ok(coef),
         _ => qr_solve(x, n, p, y, Some(w)).map(|ls| ls.coef),
     }
+}
+
+/// Upper triangle of [X'WX | X'Wy] over rows lo..hi (row-major, width p + 1) and whether those rows
+/// of x are finite.
+///
+/// Designs with B-spline and dummy columns are mostly constant per column: a centred basis column
+/// equals −mean outside the support of its function, a dummy 0. So each column j gets a baseline c_j
+/// (the most frequent value among the block's first rows) and the rows are split as x_i = d_i + c with
+/// d_i sparse (exact zeros where x_ij = c_j); then, exactly in algebra,
+/// X'WX = Σ w d d' + (Σ w d) c' + c (Σ w d)' + (Σ w) c c' and X'Wy = Σ w y d + (Σ w y) c,
+/// which costs (nonzeros of d_i)² per row instead of p². Any baseline gives the same matrix up to
+/// rounding; a good one only makes it cheaper. Rows with zero weight are skipped.
+fn xtwx_block(x: &[f64], p: usize, y: &[f64], w: &[f64], lo: usize, hi: usize) -> (Vec<f64>, bool) {
+    let width = p + 1;
+    let mut part = vec![0.0; p * width];
+    if !all_finite(&x[lo * p..hi * p]) {
+        return (part, false);
+    }
+    let c = block_baseline(x, p, lo, hi);
+    let mut sum_wd = vec![0.0; p];
+    let mut sum_w = 0.0;
+    let mut sum_wy = 0.0;
+    let mut idx = vec![0usize; p];
+    let mut val = vec![0.0; p];
+    for i in lo..hi {
+        let wi = w[i];
+        if wi == 0.0 {
+            continue;
+        }
+        let row = &x[i * p..(i + 1) * p];
+        let mut m = 0;
+        for j in 0..p {
+            let d = row[j] - c[j];
+            if d != 0.0 {
+                idx[m] = j;
+                val[m] = d;
+                m += 1;
+            }
+        }
+        let wy = wi * y[i];
+        sum_w += wi;
+        sum_wy += wy;
+        for a in 0..m {
+            let ja = idx[a];
+            let wd = wi * val[a];
+            sum_wd[ja] += wd;
+            let dst = &mut part[ja * width..(ja + 1) * width];
+            for b in a..m {
+                dst[idx[b]] += wd * val[b];
+            }
+            dst[p] += val[a] * wy;
+        }
+    }
+    // Add the baseline terms to the upper triangle.
+    for j in 0..p {
+        let dst = &mut part[j * width..(j + 1) * width];
+        for k in j..p {
+            dst[k] += sum_wd[j] * c[k] + c[j] * sum_wd[k] + sum_w * c[j] * c[k];
+        }
+        dst[p] += sum_wy * c[j];
+    }
+    (part, true)
+}
+
+/// Per column, the most frequent value among the first rows of the block (ties: the earliest), or 0
+/// when no value repeats.
+fn block_baseline(x: &[f64], p: usize, lo: usize, hi: usize) -> Vec<f64> {
+    const PROBE: usize = 16;
+    let rows = (hi - lo).min(PROBE);
+    (0..p)
+        .map(|j| {
+            let vals: Vec<f64> = (lo..lo + rows).map(|i| x[i * p + j]).collect();
+            let mut best = (0.0, 1usize);
+            for (a, &v) in vals.iter().enumerate() {
+                let count = vals[a..].iter().filter(|&&u| u == v).count();
+                if count > best.1 {
+                    best = (v, count);
+                }
+            }
+            best.0
+        })
+        .collect()
 }
 
 /// In-place Cholesky of the upper triangle of `a` (p × (p+1), last column the right-hand side) and the
@@ -377,40 +607,49 @@ fn cholesky_solve(a: &mut [f64], p: usize) -> Option<Vec<f64>> {
     Some(b)
 }
 
-/// Residuals y − Xb into `out`.
+/// Residuals y − Xb into `out` (rows in parallel; each value is computed the same way on any thread).
 pub fn residuals(x: &[f64], n: usize, p: usize, y: &[f64], coef: &[f64], out: &mut [f64]) {
-    for i in 0..n {
-        let row = &x[i * p..(i + 1) * p];
-        let mut s = 0.0;
-        for j in 0..p {
-            s += row[j] * coef[j];
+    let out = &mut out[..n];
+    fill_blocks(out, |lo, part| {
+        for (k, o) in part.iter_mut().enumerate() {
+            let i = lo + k;
+            *o = y[i] - dot(&x[i * p..(i + 1) * p], coef);
         }
-        out[i] = y[i] - s;
-    }
+    });
 }
 
 /// Hat values h_i = x_i'(X'X)^-1 x_i from the R factor of an unweighted QR.
 ///
 /// h_i = ||R^-T x_i||², one forward substitution per row (Belsley, Kuh & Welsch 1980, from memory, for
 /// the hat matrix; the R-based evaluation avoids forming (X'X)^-1). A zero diagonal of R (impossible for
-/// an R from a successful [`qr_solve`]) contributes nothing rather than NaN.
+/// an R from a successful [`qr_solve`]) contributes nothing rather than NaN. Rows run in parallel.
 pub fn hat_values(x: &[f64], n: usize, p: usize, r: &[f64]) -> Vec<f64> {
     let mut h = vec![0.0; n];
-    let mut u = vec![0.0; p];
-    for i in 0..n {
-        let row = &x[i * p..(i + 1) * p];
-        let mut s2 = 0.0;
-        for j in 0..p {
-            let mut s = row[j];
-            for k in 0..j {
-                s -= r[k * p + j] * u[k];
-            }
-            let d = r[j * p + j];
-            u[j] = if d != 0.0 { s / d } else { 0.0 };
-            s2 += u[j] * u[j];
+    // Reciprocal-free: the same divisions as a row-by-row loop, R read column-wise from its transpose.
+    let mut rt = vec![0.0; p * p];
+    for j in 0..p {
+        for k in 0..p {
+            rt[j * p + k] = r[k * p + j];
         }
-        h[i] = s2;
     }
+    fill_blocks(&mut h, |lo, part| {
+        let mut u = vec![0.0; p];
+        for (k, hk) in part.iter_mut().enumerate() {
+            let i = lo + k;
+            let row = &x[i * p..(i + 1) * p];
+            let mut s2 = 0.0;
+            for j in 0..p {
+                let mut s = row[j];
+                for (a, b) in rt[j * p..j * p + j].iter().zip(&u[..j]) {
+                    s -= a * b;
+                }
+                let d = r[j * p + j];
+                u[j] = if d != 0.0 { s / d } else { 0.0 };
+                s2 += u[j] * u[j];
+            }
+            *hk = s2;
+        }
+    });
     h
 }
 

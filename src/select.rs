@@ -306,8 +306,25 @@ impl Keeper {
 
 /// Run the selection.
 pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustPlan) -> Result<Selection, SelectError> {
+    select_with_progress(frame, terms, spec, plan, &|_, _| {})
+}
+
+/// [`select`], calling `progress(done, total)` after each step (the shared S-estimate, then each grid
+/// point's classical and robust fits). `total` is the number of steps planned so far (the coordinate-wise
+/// search learns its length as it goes). The callback never affects the result.
+pub fn select_with_progress(
+    frame: &Frame,
+    terms: &ModelTerms,
+    spec: &GridSpec,
+    plan: &RobustPlan,
+    progress: &dyn Fn(usize, usize),
+) -> Result<Selection, SelectError> {
     let n_smooth = terms.smooth.len();
     let (search, mut candidates) = candidate_points(spec, n_smooth);
+    let shared_step = usize::from(plan.method.needs_s_estimate() && plan.scale_mode == ScaleMode::Shared);
+    let planned_grid = if search == SearchKind::CoordinateWise { spec.shared.len() } else { candidates.len() };
+    let report = |done: usize| progress(done, (shared_step + planned_grid).max(done));
+    report(0);
     let lists: Vec<Vec<usize>> =
         spec.per_term.iter().map(|g| g.clone().unwrap_or_else(|| spec.shared.clone())).collect();
     let mut ev = Evaluator { frame, terms, spec, plan, shared_scale: None, anchor: None };
@@ -338,6 +355,7 @@ pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustP
             s_richest = Some(s);
             break;
         }
+        report(1);
     }
 
     let mut kept = Keeper::default();
@@ -345,6 +363,7 @@ pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustP
         // Start from the best shared size, then improve term by term, for each criterion.
         for &k in &spec.shared {
             kept.add(ev.evaluate(&vec![k; n_smooth])?);
+            report(shared_step + kept.points.len());
         }
         for which in 0..2 {
             let key = |p: &GridPoint| if which == 0 { p.bic } else { p.rbic };
@@ -357,6 +376,7 @@ pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustP
                         s[t] = k;
                         if !kept.has(&s) {
                             kept.add(ev.evaluate(&s)?);
+                            report(shared_step + kept.points.len());
                         }
                     }
                     let best = kept
@@ -378,6 +398,7 @@ pub fn select(frame: &Frame, terms: &ModelTerms, spec: &GridSpec, plan: &RobustP
     } else {
         for s in &candidates {
             kept.add(ev.evaluate(s)?);
+            report(shared_step + kept.points.len());
         }
     }
 

@@ -89,6 +89,7 @@ pub fn m_fixed_scale(
             termination: Termination::ScaleCollapsed { iterations: 0 },
         });
     }
+    let _timer = super::profile::stage(|| format!("irls m_fixed_scale n={n} p={p}"));
     let mut w = vec![0.0; n];
     let mut r_new = vec![0.0; n];
     let mut termination = Termination::IterationLimit { iterations: opts.max_iter };
@@ -102,6 +103,9 @@ pub fn m_fixed_scale(
             termination = Termination::Converged { iterations: it };
             break;
         }
+    }
+    if super::profile::enabled() {
+        eprintln!("knotwise-profile: irls {termination:?}");
     }
     // The reported solve: once more by QR with the weights of the final residuals.
     weights_into(loss, &r, scale, &mut w);

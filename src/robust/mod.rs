@@ -3,6 +3,7 @@
 
 pub mod irls;
 pub mod loss;
+pub mod profile;
 pub mod sandwich;
 pub mod scale;
 pub mod sest;

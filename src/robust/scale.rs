@@ -98,10 +98,7 @@ pub fn m_scale(r: &[f64], c: f64, b: f64, start: Option<f64>, max_iter: usize, t
     };
     let inv_n = 1.0 / n as f64;
     for it in 1..=max_iter {
-        let mut sum = 0.0;
-        for v in r {
-            sum += loss.rho(v / s);
-        }
+        let sum = sum_rho(&loss, r, s);
         let ratio = sum * inv_n / b;
         let s_new = s * ratio.sqrt();
         if !(s_new > 0.0) || !s_new.is_finite() {
@@ -122,7 +119,18 @@ pub fn mean_rho(r: &[f64], c: f64, s: f64) -> f64 {
         return 0.0;
     }
     let loss = Bisquare { c };
-    r.iter().map(|v| loss.rho(v / s)).sum::<f64>() / r.len() as f64
+    sum_rho(&loss, r, s) / r.len() as f64
+}
+
+/// Σ ρ(r_i / s) over the fixed row blocks of `linalg`, added in block order (thread-count independent).
+fn sum_rho(loss: &Bisquare, r: &[f64], s: f64) -> f64 {
+    crate::linalg::sum_blocks(r.len(), |lo, hi| {
+        let mut sum = 0.0;
+        for v in &r[lo..hi] {
+            sum += loss.rho(v / s);
+        }
+        sum
+    })
 }
 
 #[cfg(test)]

@@ -14,7 +14,7 @@ use rand_core::{RngCore, SeedableRng};
 use super::loss::{Bisquare, Loss};
 use super::scale::{m_scale, mad_about_zero, mean_rho, MSCALE_B, MSCALE_C};
 use super::{check_data, exact_fit_threshold, RobustError};
-use crate::linalg::{normal_solve, qr_solve, residuals};
+use crate::linalg::{as_worker, normal_solve, qr_solve, residuals};
 use crate::termination::Termination;
 
 /// Settings of the fast-S search (defaults from Salibián-Barrera & Yohai 2006).
@@ -134,6 +134,8 @@ pub fn s_estimate(x: &[f64], n: usize, p: usize, y: &[f64], opts: &SOptions) -> 
             search_rows: n,
         });
     }
+    let _timer = super::profile::stage(|| format!("s-estimate n={n} p={p} total"));
+    let search_timer = super::profile::stage(|| "s-estimate random search".into());
     let mut rng = ChaCha8Rng::seed_from_u64(opts.seed);
 
     // The rows of the search.
@@ -157,76 +159,86 @@ pub fn s_estimate(x: &[f64], n: usize, p: usize, y: &[f64], opts: &SOptions) -> 
     let wanted = opts.subsamples.max(1);
     let keep = opts.best_candidates.max(1);
     let max_attempts = wanted.saturating_mul(ATTEMPTS_PER_SUBSAMPLE);
-    let rho = Bisquare { c: MSCALE_C };
     let mut idx: Vec<usize> = (0..ns).collect();
     let mut xsub = vec![0.0; p * p];
     let mut ysub = vec![0.0; p];
-    let mut r = vec![0.0; ns];
-    let mut w = vec![0.0; ns];
     let mut best: Vec<Candidate> = Vec::with_capacity(keep + 1);
     let mut drawn = 0;
     let mut singular = 0;
     let mut attempts = 0;
 
+    // Subsamples are drawn (and solved exactly) in sequence, a batch at a time; the refining steps of
+    // a batch, independent of each other, run on the worker threads (each subsample on one thread,
+    // computed identically on any); then the batch is scored in draw order. So the kept candidates
+    // are those of a plain sequential loop, whatever the thread count.
+    let mut r_store: Vec<Vec<f64>> = Vec::new();
     while drawn < wanted && attempts < max_attempts {
-        attempts += 1;
-        partial_shuffle(&mut rng, &mut idx, p);
-        for (a, &i) in idx[..p].iter().enumerate() {
-            xsub[a * p..(a + 1) * p].copy_from_slice(&xs[i * p..(i + 1) * p]);
-            ysub[a] = ys[i];
+        let mut batch: Vec<Vec<f64>> = Vec::new();
+        while batch.len() < REFINE_BATCH && drawn < wanted && attempts < max_attempts {
+            attempts += 1;
+            partial_shuffle(&mut rng, &mut idx, p);
+            for (a, &i) in idx[..p].iter().enumerate() {
+                xsub[a * p..(a + 1) * p].copy_from_slice(&xs[i * p..(i + 1) * p]);
+                ysub[a] = ys[i];
+            }
+            match qr_solve(&xsub, p, p, &ysub, None) {
+                Ok(ls) => {
+                    drawn += 1;
+                    batch.push(ls.coef);
+                }
+                Err(_) => singular += 1,
+            }
         }
-        let mut coef = match qr_solve(&xsub, p, p, &ysub, None) {
-            Ok(ls) => ls.coef,
-            Err(_) => {
-                singular += 1;
+        r_store.resize_with(batch.len().max(r_store.len()), || vec![0.0; ns]);
+        let refined = refine_batch(&xs, ns, p, &ys, batch, &mut r_store, opts.refine_steps, tiny);
+
+        // Scoring with early rejection, in draw order.
+        for ((coef, s), r) in refined.into_iter().zip(&r_store) {
+            let full = best.len() < keep;
+            let start = if full { s } else { best[keep - 1].scale };
+            if !full && !(mean_rho(r, MSCALE_C, start) < MSCALE_B) {
                 continue;
             }
-        };
-        drawn += 1;
-
-        // Refining I-steps.
-        residuals(&xs, ns, p, &ys, &coef, &mut r);
-        let mut s = mad_about_zero(&r);
-        if !(s > tiny) {
-            s = m_scale(&r, MSCALE_C, MSCALE_B, None, MSCALE_MAX_ITER, MSCALE_TOL).value;
+            let start = if start > tiny { Some(start) } else { None };
+            let sc = m_scale(r, MSCALE_C, MSCALE_B, start, MSCALE_MAX_ITER, MSCALE_TOL).value;
+            let sc = if sc > tiny { sc } else { 0.0 };
+            // Insert keeping ascending scale; ties keep the earlier candidate first.
+            let pos = best.iter().position(|b| sc < b.scale).unwrap_or(best.len());
+            best.insert(pos, Candidate { coef, scale: sc });
+            best.truncate(keep);
         }
-        for _ in 0..opts.refine_steps {
-            if !(s > tiny) {
-                break;
-            }
-            for (wi, ri) in w.iter_mut().zip(r.iter()) {
-                *wi = rho.weight(ri / s);
-            }
-            match normal_solve(&xs, ns, p, &ys, &w) {
-                Ok(c) => coef = c,
-                Err(_) => break,
-            }
-            residuals(&xs, ns, p, &ys, &coef, &mut r);
-            s *= (mean_rho(&r, MSCALE_C, s) / MSCALE_B).sqrt();
-        }
-
-        // Scoring with early rejection.
-        let full = best.len() < keep;
-        let start = if full { s } else { best[keep - 1].scale };
-        if !full && !(mean_rho(&r, MSCALE_C, start) < MSCALE_B) {
-            continue;
-        }
-        let start = if start > tiny { Some(start) } else { None };
-        let sc = m_scale(&r, MSCALE_C, MSCALE_B, start, MSCALE_MAX_ITER, MSCALE_TOL).value;
-        let sc = if sc > tiny { sc } else { 0.0 };
-        // Insert keeping ascending scale; ties keep the earlier candidate first.
-        let pos = best.iter().position(|b| sc < b.scale).unwrap_or(best.len());
-        best.insert(pos, Candidate { coef, scale: sc });
-        best.truncate(keep);
     }
+    drop(r_store);
     if best.is_empty() {
         return Err(RobustError::AllSubsamplesSingular { tried: attempts });
     }
+    drop(search_timer);
 
-    // Final iterations on all rows.
+    // Final iterations. When the search ran on a subset, the kept candidates are first iterated to
+    // convergence on the subset and only the best of them on all rows (nested subsets, as in
+    // Rousseeuw & Van Driessen 1999); otherwise every kept candidate is iterated on all rows.
+    let best = if ns < n {
+        let _t = super::profile::stage(|| format!("s-estimate {} candidates on the {ns}-row subset", best.len()));
+        let mut on_subset: Option<Candidate> = None;
+        for cand in best {
+            let (c, _) = iterate_to_convergence(&xs, ns, p, &ys, cand, opts, tiny);
+            if on_subset.as_ref().is_none_or(|b| c.scale < b.scale) {
+                on_subset = Some(c);
+            }
+        }
+        drop(xs);
+        drop(ys);
+        on_subset.into_iter().collect()
+    } else {
+        best
+    };
     let mut chosen: Option<(Candidate, Termination)> = None;
     for cand in best {
+        let _t = super::profile::stage(|| "s-estimate final iteration of one candidate".into());
         let (c, term) = iterate_to_convergence(x, n, p, y, cand, opts, tiny);
+        if super::profile::enabled() {
+            eprintln!("knotwise-profile: s-estimate candidate {term:?}");
+        }
         let better = match &chosen {
             None => true,
             Some((b, _)) => c.scale < b.scale,
@@ -246,6 +258,78 @@ pub fn s_estimate(x: &[f64], n: usize, p: usize, y: &[f64], opts: &SOptions) -> 
         subsamples_drawn: drawn,
         singular_redraws: singular,
         search_rows: ns,
+    })
+}
+
+/// Subsamples refined together (drawn in sequence, refined in parallel, scored in sequence).
+const REFINE_BATCH: usize = 32;
+
+/// The refining I-steps of each exact fit in `batch`: residuals, MAD (or M-scale) start, then
+/// `steps` rounds of bisquare-weighted LS and one M-scale fixed-point step. Returns each refined
+/// coefficient vector with its scale; the refined residuals go to `r_store[k]`. Subsamples are dealt
+/// to threads in contiguous runs; each is computed on one thread only (its row sums single-threaded),
+/// so the result does not depend on the thread count.
+#[allow(clippy::too_many_arguments)]
+fn refine_batch(
+    xs: &[f64],
+    ns: usize,
+    p: usize,
+    ys: &[f64],
+    batch: Vec<Vec<f64>>,
+    r_store: &mut [Vec<f64>],
+    steps: usize,
+    tiny: f64,
+) -> Vec<(Vec<f64>, f64)> {
+    let refine_one = |mut coef: Vec<f64>, r: &mut Vec<f64>, w: &mut Vec<f64>| -> (Vec<f64>, f64) {
+        let rho = Bisquare { c: MSCALE_C };
+        residuals(xs, ns, p, ys, &coef, r);
+        let mut s = mad_about_zero(r);
+        if !(s > tiny) {
+            s = m_scale(r, MSCALE_C, MSCALE_B, None, MSCALE_MAX_ITER, MSCALE_TOL).value;
+        }
+        for _ in 0..steps {
+            if !(s > tiny) {
+                break;
+            }
+            for (wi, ri) in w.iter_mut().zip(r.iter()) {
+                *wi = rho.weight(ri / s);
+            }
+            match normal_solve(xs, ns, p, ys, w) {
+                Ok(c) => coef = c,
+                Err(_) => break,
+            }
+            residuals(xs, ns, p, ys, &coef, r);
+            s *= (mean_rho(r, MSCALE_C, s) / MSCALE_B).sqrt();
+        }
+        (coef, s)
+    };
+    let m = batch.len();
+    let t = crate::linalg::threads().min(m).max(1);
+    let per = m.div_ceil(t);
+    let mut items: Vec<(Vec<f64>, &mut Vec<f64>)> = batch.into_iter().zip(r_store.iter_mut()).collect();
+    if t == 1 {
+        let mut w = vec![0.0; ns];
+        return as_worker(|| items.into_iter().map(|(c, r)| refine_one(c, r, &mut w)).collect());
+    }
+    let mut groups: Vec<Vec<(Vec<f64>, &mut Vec<f64>)>> = Vec::new();
+    while !items.is_empty() {
+        let rest = items.split_off(per.min(items.len()));
+        groups.push(std::mem::replace(&mut items, rest));
+    }
+    std::thread::scope(|sc| {
+        let refine_one = &refine_one;
+        let handles: Vec<_> = groups
+            .into_iter()
+            .map(|g| {
+                sc.spawn(move || {
+                    as_worker(|| {
+                        let mut w = vec![0.0; ns];
+                        g.into_iter().map(|(c, r)| refine_one(c, r, &mut w)).collect::<Vec<_>>()
+                    })
+                })
+            })
+            .collect();
+        handles.into_iter().flat_map(|h| h.join().expect("refining thread panicked")).collect()
     })
 }
 
