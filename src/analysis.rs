@@ -179,6 +179,7 @@ pub fn analyse_with_progress(
             return Err(Error::new(format!("cannot build the design: {e:?}")).at(spec_display))
         }
     };
+    let _t = crate::robust::profile::stage(|| "sensitivity".into());
     let sensitivity = sensitivity::analyse(
         &frame,
         &terms,

@@ -68,11 +68,19 @@ pub fn compute(
     rerun_json: String,
     progress: &dyn Fn(usize, usize),
 ) -> Result<RunOutputs> {
+    use crate::robust::profile::stage;
     let resolved = study.to_resolved_yaml();
+    let t = stage(|| "read the data".into());
     let frame = load_frame(&study, spec_display)?;
+    drop(t);
+    let t = stage(|| "analysis (selection and sensitivity)".into());
     let analysis = analysis::analyse_with_progress(study, frame, spec_display, progress)?;
+    drop(t);
+    let t = stage(|| "results.json and rows.csv".into());
     let results = outputs::results(&analysis, &outputs::Inputs { spec_bytes, resolved_yaml: &resolved });
     let rows = outputs::rows_csv(&analysis);
+    drop(t);
+    let _t = stage(|| "report".into());
     let json =
         serde_json::to_string_pretty(&results).map_err(|e| Error::new(format!("cannot write results: {e}")))? + "\n";
     let html = crate::report::render(&analysis, &results, &resolved)?;

@@ -117,6 +117,8 @@ pub struct Fit {
     pub interval: IntervalKind,
     /// Quantile used for the 95% intervals and bands.
     pub critical: f64,
+    /// (X'X)⁻¹ of the unweighted design (from its QR factor), p × p; shared with fits on the same design.
+    pub xtx_inverse: Vec<f64>,
 }
 
 impl Fit {
@@ -164,6 +166,7 @@ pub fn classical(design: &Design) -> Result<Fit, FitError> {
     let sigma2 = ls.rss / df;
     let inv = ls.xtx_inverse();
     let cov: Vec<f64> = inv.iter().map(|v| v * sigma2).collect();
+    let xtx_inverse = inv;
     let critical = dist::t_quantile(0.975, df);
     let Finished { coef, cov, std_errors, lower, upper, fitted, residuals } = finish(design, ls.coef, cov, critical);
     let tss = total_sum_of_squares(&design.y);
@@ -183,6 +186,7 @@ pub fn classical(design: &Design) -> Result<Fit, FitError> {
         r_squared,
         interval: IntervalKind::StudentT,
         critical,
+        xtx_inverse,
     })
 }
 
@@ -200,6 +204,18 @@ pub fn robust(
     scale: f64,
     options: &IrlsOptions,
 ) -> Result<Fit, FitError> {
+    robust_with_xtx(design, method, start, scale, options, None)
+}
+
+/// [`robust`] reusing (X'X)⁻¹ of the same design (e.g. from its classical fit), saving a QR.
+pub fn robust_with_xtx(
+    design: &Design,
+    method: RobustMethod,
+    start: Option<&[f64]>,
+    scale: f64,
+    options: &IrlsOptions,
+    xtx_inverse: Option<&[f64]>,
+) -> Result<Fit, FitError> {
     let (n, p) = (design.n, design.p);
     if n <= p {
         return Err(FitError::TooFewRows { rows: n, columns: p });
@@ -213,8 +229,10 @@ pub fn robust(
             irls::m_fixed_scale(&design.x, n, p, &design.y, start, scale, loss.as_ref(), options)?
         }
     };
-    let ls = linalg::qr_solve(&design.x, n, p, &design.y, None)?;
-    let inv = ls.xtx_inverse();
+    let inv = match xtx_inverse {
+        Some(inv) if inv.len() == p * p => inv.to_vec(),
+        _ => linalg::qr_solve(&design.x, n, p, &design.y, None)?.xtx_inverse(),
+    };
     let cov = if est.scale > 0.0 {
         sandwich::huber_sandwich(&design.x, n, p, &est.residuals, est.scale, loss.as_ref(), &inv)?
     } else {
@@ -240,6 +258,7 @@ pub fn robust(
         r_squared,
         interval: IntervalKind::Normal,
         critical,
+        xtx_inverse: inv,
     })
 }
 

@@ -11,7 +11,6 @@
 use crate::data::Frame;
 use crate::design::{Design, DesignError, ModelTerms};
 use crate::fit::{self, Fit, FitError, RobustMethod};
-use crate::linalg;
 use crate::robust::irls::IrlsOptions;
 use crate::robust::sest::{SEstimate, SOptions};
 use crate::termination::Termination;
@@ -228,12 +227,9 @@ impl Evaluator<'_> {
         {
             (false, _, _) => (None, 0.0, None),
             (true, ScaleMode::Shared, Some(scale)) => {
-                let start = match &self.anchor {
-                    Some(anchor) => {
-                        linalg::qr_solve(&design.x, design.n, design.p, anchor, None).ok().map(|ls| ls.coef)
-                    }
-                    None => None,
-                };
+                // Least-squares projection of the anchor through the classical fit's (X'X)⁻¹: a start
+                // value only (the MM iteration takes it from there), so no QR of its own is needed.
+                let start = self.anchor.as_ref().map(|anchor| project(&design, &classical.xtx_inverse, anchor));
                 (start, scale, None)
             }
             _ => {
@@ -242,8 +238,15 @@ impl Evaluator<'_> {
                 (Some(s.coef.clone()), s.scale, Some(s))
             }
         };
-        let robust = fit::robust(&design, self.plan.method, start.as_deref(), scale, &self.plan.irls)
-            .map_err(|e| SelectError::Fit(e, sizes.to_vec()))?;
+        let robust = fit::robust_with_xtx(
+            &design,
+            self.plan.method,
+            start.as_deref(),
+            scale,
+            &self.plan.irls,
+            Some(&classical.xtx_inverse),
+        )
+        .map_err(|e| SelectError::Fit(e, sizes.to_vec()))?;
         let loss = self.plan.method.loss();
         if robust.scale > 0.0 {
             point.rbic = Some(rbic(&robust.residuals, robust.scale, &|t| loss.rho(t), design.p, self.spec.penalty));
@@ -251,6 +254,18 @@ impl Evaluator<'_> {
         point.robust_termination = Some(robust.termination);
         Ok(Evaluated { point, classical: Some((design, classical)), robust: Some((robust, s_est)) })
     }
+}
+
+/// (X'X)⁻¹ X'v: the least-squares coefficients of `v` on the design.
+fn project(design: &Design, xtx_inverse: &[f64], v: &[f64]) -> Vec<f64> {
+    let p = design.p;
+    let mut xtv = vec![0.0; p];
+    for (i, vi) in v.iter().enumerate() {
+        for (a, x) in xtv.iter_mut().zip(design.row(i)) {
+            *a += x * vi;
+        }
+    }
+    (0..p).map(|j| (0..p).map(|k| xtx_inverse[j * p + k] * xtv[k]).sum()).collect()
 }
 
 fn argmin(points: &[GridPoint], key: impl Fn(&GridPoint) -> Option<f64>) -> Option<usize> {
@@ -343,11 +358,10 @@ pub fn select_with_progress(
         order.sort_by_key(|s| std::cmp::Reverse(s.iter().sum::<usize>()));
         for sizes in &order {
             let Ok(design) = Design::build(frame, terms, sizes) else { continue };
-            if fit::classical(&design).is_err() {
-                continue;
-            }
+            let Ok(classical) = fit::classical(&design) else { continue };
             let s = fit::s_estimate(&design, &plan.s_options).map_err(|e| SelectError::Fit(e, sizes.clone()))?;
-            let mm = fit::robust(&design, plan.method, Some(&s.coef), s.scale, &plan.irls)
+            let xtx = Some(classical.xtx_inverse.as_slice());
+            let mm = fit::robust_with_xtx(&design, plan.method, Some(&s.coef), s.scale, &plan.irls, xtx)
                 .map_err(|e| SelectError::Fit(e, sizes.clone()))?;
             ev.shared_scale = Some(s.scale);
             ev.anchor = Some(mm.fitted.clone());

@@ -238,7 +238,8 @@ pub fn analyse(
             classical_without = Some((sub, f));
         }
         let rsub = rd.subset(&keep);
-        if let Ok(f) = fit::robust(&rsub, method, Some(&rf.coef), rf.scale, irls) {
+        let xtx = classical_without.as_ref().filter(|_| cd.sizes == rd.sizes).map(|(_, f)| f.xtx_inverse.as_slice());
+        if let Ok(f) = fit::robust_with_xtx(&rsub, method, Some(&rf.coef), rf.scale, irls, xtx) {
             let lin = linear_columns(rd);
             let mv = lin
                 .iter()

@@ -34,7 +34,8 @@ pub struct SOptions {
     /// a fitted value relative to the scale (1e-10).
     pub tol: f64,
     /// When n > search_rows, the random search (subsamples and refining) runs on a seeded random subset
-    /// of this many rows and only the best candidates are iterated on all n rows (20 000). The
+    /// of this many rows (5 000); the best candidates are iterated to convergence on it and the winner's
+    /// scale is re-solved on all n rows. The
     /// nested-subset idea is that of Rousseeuw & Van Driessen (1999) for large n, used for S-estimates
     /// by Salibián-Barrera & Yohai (2006) (from memory).
     pub search_rows: usize,
@@ -49,7 +50,7 @@ impl Default for SOptions {
             best_candidates: 5,
             max_iter: 500,
             tol: 1e-10,
-            search_rows: 20_000,
+            search_rows: 5_000,
         }
     }
 }
@@ -217,21 +218,52 @@ pub fn s_estimate(x: &[f64], n: usize, p: usize, y: &[f64], opts: &SOptions) -> 
     // Final iterations. When the search ran on a subset, the kept candidates are first iterated to
     // convergence on the subset and only the best of them on all rows (nested subsets, as in
     // Rousseeuw & Van Driessen 1999); otherwise every kept candidate is iterated on all rows.
-    let best = if ns < n {
+    if ns < n {
+        // Large n: the kept candidates are iterated to convergence on the subset, and the best one's
+        // scale is then re-solved on all rows from the M-scale equation (1/n) Σ ρ(r_i/s) = b at its
+        // coefficients (nested subsets for large n, Rousseeuw & Van Driessen 1999; Salibián-Barrera &
+        // Yohai 2006). Full-data I-steps converge linearly and would cost ~100 passes over every row;
+        // the MM step that follows refines the coefficients on all rows anyway.
         let _t = super::profile::stage(|| format!("s-estimate {} candidates on the {ns}-row subset", best.len()));
-        let mut on_subset: Option<Candidate> = None;
+        // The kept candidates race to a loose tolerance; only the winner is iterated to the full one.
+        let loose = SOptions { tol: opts.tol.max(1e-6), ..opts.clone() };
+        let mut leader: Option<Candidate> = None;
         for cand in best {
-            let (c, _) = iterate_to_convergence(&xs, ns, p, &ys, cand, opts, tiny);
-            if on_subset.as_ref().is_none_or(|b| c.scale < b.scale) {
-                on_subset = Some(c);
+            let (c, _) = iterate_to_convergence(&xs, ns, p, &ys, cand, &loose, tiny);
+            if leader.as_ref().is_none_or(|b| c.scale < b.scale) {
+                leader = Some(c);
             }
         }
+        let on_subset = leader.map(|c| iterate_to_convergence(&xs, ns, p, &ys, c, opts, tiny));
         drop(xs);
         drop(ys);
-        on_subset.into_iter().collect()
-    } else {
-        best
-    };
+        let Some((c, subset_term)) = on_subset else {
+            return Err(RobustError::AllSubsamplesSingular { tried: attempts });
+        };
+        let mut r = vec![0.0; n];
+        crate::linalg::residuals(x, n, p, y, &c.coef, &mut r);
+        let full = super::scale::m_scale(
+            &r,
+            super::scale::MSCALE_C,
+            super::scale::MSCALE_B,
+            Some(c.scale),
+            opts.max_iter,
+            opts.tol,
+        );
+        let (scale, full_term) = collapse_check(full.value, full.termination, tiny);
+        let termination = if subset_term.is_ok() { full_term } else { subset_term };
+        if c.coef.iter().any(|v| !v.is_finite()) || !scale.is_finite() {
+            return Err(RobustError::NonFinite);
+        }
+        return Ok(SEstimate {
+            coef: c.coef,
+            scale,
+            termination,
+            subsamples_drawn: drawn,
+            singular_redraws: singular,
+            search_rows: ns,
+        });
+    }
     let mut chosen: Option<(Candidate, Termination)> = None;
     for cand in best {
         let _t = super::profile::stage(|| "s-estimate final iteration of one candidate".into());
