@@ -198,3 +198,47 @@ fn a_failed_run_writes_nothing() {
     assert!(leftovers.is_empty(), "temporary folder left behind");
     let _ = std::fs::remove_dir_all(&d);
 }
+
+/// 20,000 invented rows: more than the linear algebra's 4,096-row blocks (so the threads share the
+/// work) and more than the S-estimate's 5,000-row search subset.
+fn write_large_study(dir: &Path) -> PathBuf {
+    let mut g = common::Lcg(99);
+    let mut csv = String::from("y,z,x\n");
+    for _ in 0..20_000 {
+        let (z, x) = (g.normal(), g.uniform() * 5.0);
+        let mut y = 1.0 + 0.5 * z + (1.3 * x).sin() + 0.3 * g.normal();
+        if g.uniform() < 0.05 {
+            y += 4.0;
+        }
+        csv.push_str(&format!("{y},{z},{x}\n"));
+    }
+    std::fs::write(dir.join("large.csv"), csv).unwrap();
+    let spec = dir.join("large.yaml");
+    std::fs::write(
+        &spec,
+        "knotwise: 1\ntitle: Threads\ndata:\n  file: large.csv\nresponse: y\nlinear:\n  - column: z\nsmooth:\n  - column: x\nselection:\n  basis-sizes: [5, 7]\nrobust:\n  subsamples: 100\n",
+    )
+    .unwrap();
+    spec
+}
+
+#[test]
+fn thread_count_does_not_change_a_byte() {
+    let d = scratch("threads");
+    let spec = write_large_study(&d);
+    let s = spec.to_str().unwrap();
+    for (threads, out) in [("1", "t1"), ("2", "t2"), ("3", "t3")] {
+        let o = Command::new(env!("CARGO_BIN_EXE_knotwise"))
+            .args(["run", s, "--out", out])
+            .env("KNOTWISE_THREADS", threads)
+            .current_dir(&d)
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    }
+    for f in ["report.html", "results.json", "rows.csv"] {
+        assert_eq!(read(&d.join("t1").join(f)), read(&d.join("t2").join(f)), "{f}: 1 vs 2 threads");
+        assert_eq!(read(&d.join("t1").join(f)), read(&d.join("t3").join(f)), "{f}: 1 vs 3 threads");
+    }
+    let _ = std::fs::remove_dir_all(&d);
+}
