@@ -264,22 +264,20 @@ pub fn s_estimate(x: &[f64], n: usize, p: usize, y: &[f64], opts: &SOptions) -> 
             search_rows: ns,
         });
     }
-    let mut chosen: Option<(Candidate, Termination)> = None;
+    // The kept candidates race to a loose tolerance; only the winner is iterated to the full one.
+    let loose = SOptions { tol: opts.tol.max(1e-6), ..opts.clone() };
+    let mut leader: Option<Candidate> = None;
     for cand in best {
-        let _t = super::profile::stage(|| "s-estimate final iteration of one candidate".into());
-        let (c, term) = iterate_to_convergence(x, n, p, y, cand, opts, tiny);
-        if super::profile::enabled() {
-            eprintln!("knotwise-profile: s-estimate candidate {term:?}");
-        }
-        let better = match &chosen {
-            None => true,
-            Some((b, _)) => c.scale < b.scale,
-        };
-        if better {
-            chosen = Some((c, term));
+        let _t = super::profile::stage(|| "s-estimate race of one candidate".into());
+        let (c, _) = iterate_to_convergence(x, n, p, y, cand, &loose, tiny);
+        if leader.as_ref().is_none_or(|b| c.scale < b.scale) {
+            leader = Some(c);
         }
     }
-    let (c, termination) = chosen.expect("at least one candidate");
+    let Some(leader) = leader else { return Err(RobustError::AllSubsamplesSingular { tried: attempts }) };
+    let _t = super::profile::stage(|| "s-estimate final iteration of the winner".into());
+    let (c, termination) = iterate_to_convergence(x, n, p, y, leader, opts, tiny);
+    drop(_t);
     if c.coef.iter().any(|v| !v.is_finite()) || !c.scale.is_finite() {
         return Err(RobustError::NonFinite);
     }
