@@ -146,3 +146,27 @@ fn influence_is_capped_at_fifty_rows() {
     assert_eq!(a.sensitivity.influence.len(), 50);
     assert!(a.sensitivity.influence_capped);
 }
+
+#[test]
+fn assessment_demo_planted_recording_errors_are_flagged_with_weight_near_zero() {
+    // The demo's generator lists the rows it corrupted (demo-data/assessment-planted.csv).
+    let spec = root("specs-demo/assessment.yaml");
+    let study = knotwise::spec::load(&spec).unwrap();
+    let frame = knotwise::app::load_frame(&study, "assessment.yaml").unwrap();
+    let a = knotwise::analysis::analyse(study, frame, "assessment.yaml").unwrap();
+    let planted = std::fs::read_to_string(root("demo-data/assessment-planted.csv")).unwrap();
+    let ids: Vec<&str> = planted.lines().skip(1).filter_map(|l| l.split(',').next()).collect();
+    let w = a.selection.robust_fit.weights.as_ref().unwrap();
+    let flagged: std::collections::HashSet<usize> = a.sensitivity.flagged.iter().copied().collect();
+    let mut used = 0;
+    for id in &ids {
+        // A planted row may also have been dropped for a missing value.
+        if let Some(i) = a.frame.ids.iter().position(|r| r == id) {
+            used += 1;
+            assert!(w[i] < 0.05, "planted row {id} kept robust weight {}", w[i]);
+            assert!(flagged.contains(&i), "planted row {id} not flagged");
+        }
+    }
+    assert!(used >= ids.len() - 2, "only {used} of {} planted rows were used", ids.len());
+    assert!(a.sensitivity.coefficients.iter().any(|c| c.sign_changes || c.significance_changes));
+}
