@@ -133,26 +133,47 @@ fn total_sum_of_squares(y: &[f64]) -> f64 {
     y.iter().map(|v| (v - mean) * (v - mean)).sum()
 }
 
-/// The per-coefficient and per-row pieces every fit reports.
-struct Finished {
+/// What a solver hands over; [`assemble`] derives the rest every fit reports.
+struct Solved {
     coef: Vec<f64>,
     cov: Vec<f64>,
-    std_errors: Vec<f64>,
-    lower: Vec<f64>,
-    upper: Vec<f64>,
-    fitted: Vec<f64>,
-    residuals: Vec<f64>,
+    scale: f64,
+    termination: Termination,
+    weights: Option<Vec<f64>>,
+    interval: IntervalKind,
+    critical: f64,
+    xtx_inverse: Vec<f64>,
 }
 
-fn finish(design: &Design, coef: Vec<f64>, cov: Vec<f64>, critical: f64) -> Finished {
+/// Standard errors, 95% intervals, residuals, fitted values, RSS and R² of a solved fit.
+fn assemble(design: &Design, s: Solved) -> Fit {
     let p = design.p;
-    let std_errors: Vec<f64> = (0..p).map(|j| cov[j * p + j].max(0.0).sqrt()).collect();
-    let lower = (0..p).map(|j| coef[j] - critical * std_errors[j]).collect();
-    let upper = (0..p).map(|j| coef[j] + critical * std_errors[j]).collect();
+    let std_errors: Vec<f64> = (0..p).map(|j| s.cov[j * p + j].max(0.0).sqrt()).collect();
+    let lower = (0..p).map(|j| s.coef[j] - s.critical * std_errors[j]).collect();
+    let upper = (0..p).map(|j| s.coef[j] + s.critical * std_errors[j]).collect();
     let mut residuals = vec![0.0; design.n];
-    linalg::residuals(&design.x, design.n, p, &design.y, &coef, &mut residuals);
+    linalg::residuals(&design.x, design.n, p, &design.y, &s.coef, &mut residuals);
     let fitted = design.y.iter().zip(&residuals).map(|(y, r)| y - r).collect();
-    Finished { coef, cov, std_errors, lower, upper, fitted, residuals }
+    let rss = residuals.iter().map(|r| r * r).sum::<f64>();
+    let tss = total_sum_of_squares(&design.y);
+    let r_squared = if tss > 0.0 { 1.0 - rss / tss } else { 1.0 };
+    Fit {
+        coef: s.coef,
+        cov: s.cov,
+        std_errors,
+        lower,
+        upper,
+        fitted,
+        residuals,
+        scale: s.scale,
+        termination: s.termination,
+        weights: s.weights,
+        rss,
+        r_squared,
+        interval: s.interval,
+        critical: s.critical,
+        xtx_inverse: s.xtx_inverse,
+    }
 }
 
 /// Classical least squares by Householder QR; σ̂² = RSS/(n − p); t-based 95% intervals (DESIGN.md §4.2).
@@ -166,28 +187,20 @@ pub fn classical(design: &Design) -> Result<Fit, FitError> {
     let sigma2 = ls.rss / df;
     let inv = ls.xtx_inverse();
     let cov: Vec<f64> = inv.iter().map(|v| v * sigma2).collect();
-    let xtx_inverse = inv;
     let critical = dist::t_quantile(0.975, df);
-    let Finished { coef, cov, std_errors, lower, upper, fitted, residuals } = finish(design, ls.coef, cov, critical);
-    let tss = total_sum_of_squares(&design.y);
-    let r_squared = if tss > 0.0 { 1.0 - ls.rss / tss } else { 1.0 };
-    Ok(Fit {
-        coef,
-        cov,
-        std_errors,
-        lower,
-        upper,
-        fitted,
-        residuals,
-        scale: sigma2.sqrt(),
-        termination: Termination::Direct,
-        weights: None,
-        rss: ls.rss,
-        r_squared,
-        interval: IntervalKind::StudentT,
-        critical,
-        xtx_inverse,
-    })
+    Ok(assemble(
+        design,
+        Solved {
+            coef: ls.coef,
+            cov,
+            scale: sigma2.sqrt(),
+            termination: Termination::Direct,
+            weights: None,
+            interval: IntervalKind::StudentT,
+            critical,
+            xtx_inverse: inv,
+        },
+    ))
 }
 
 /// The S-estimate of a design (the robust start and scale).
@@ -239,27 +252,19 @@ pub fn robust_with_xtx(
         vec![0.0; p * p]
     };
     let critical = dist::normal_quantile(0.975);
-    let Finished { coef, cov, std_errors, lower, upper, fitted, residuals } = finish(design, est.coef, cov, critical);
-    let rss = residuals.iter().map(|r| r * r).sum::<f64>();
-    let tss = total_sum_of_squares(&design.y);
-    let r_squared = if tss > 0.0 { 1.0 - rss / tss } else { 1.0 };
-    Ok(Fit {
-        coef,
-        cov,
-        std_errors,
-        lower,
-        upper,
-        fitted,
-        residuals,
-        scale: est.scale,
-        termination: est.termination,
-        weights: Some(est.weights),
-        rss,
-        r_squared,
-        interval: IntervalKind::Normal,
-        critical,
-        xtx_inverse: inv,
-    })
+    Ok(assemble(
+        design,
+        Solved {
+            coef: est.coef,
+            cov,
+            scale: est.scale,
+            termination: est.termination,
+            weights: Some(est.weights),
+            interval: IntervalKind::Normal,
+            critical,
+            xtx_inverse: inv,
+        },
+    ))
 }
 
 /// A smooth term's estimated curve on a grid with its pointwise 95% band.

@@ -14,6 +14,9 @@ import math
 import sys
 from pathlib import Path
 
+sys.path.insert(0, str(__import__("pathlib").Path(__file__).resolve().parent.parent))
+import refcheck  # noqa: E402  (shared writer and --check comparison)
+
 import numpy as np
 import scipy
 from scipy import stats
@@ -54,42 +57,8 @@ def build():
     }
 
 
-def compare(path, a, b, problems):
-    if isinstance(a, dict) and isinstance(b, dict):
-        if set(a) != set(b):
-            problems.append(f"{path}: keys differ: {sorted(set(a) ^ set(b))}")
-            return
-        for key in a:
-            compare(f"{path}.{key}", a[key], b[key], problems)
-    elif isinstance(a, list) and isinstance(b, list):
-        if len(a) != len(b):
-            problems.append(f"{path}: length {len(a)} != {len(b)}")
-            return
-        for i, (x, y) in enumerate(zip(a, b)):
-            compare(f"{path}[{i}]", x, y, problems)
-    elif isinstance(a, float) or isinstance(b, float):
-        if not math.isclose(a, b, rel_tol=CHECK_RTOL, abs_tol=1e-300):
-            problems.append(f"{path}: committed {a!r}, recomputed {b!r}")
-    elif a != b:
-        problems.append(f"{path}: committed {a!r}, recomputed {b!r}")
-
-
 def main(argv):
-    data = build()
-    if "--check" in argv:
-        committed = json.loads(OUT.read_text())
-        problems = []
-        compare("$", committed, data, problems)
-        if problems:
-            print(f"{OUT.name}: {len(problems)} mismatches", file=sys.stderr)
-            for p in problems[:20]:
-                print("  " + p, file=sys.stderr)
-            return 1
-        print(f"{OUT.name}: matches a fresh computation")
-        return 0
-    OUT.write_text(json.dumps(data, indent=1) + "\n")
-    print(f"wrote {OUT}")
-    return 0
+    return refcheck.main(argv, OUT, build, CHECK_RTOL)
 
 
 if __name__ == "__main__":
