@@ -238,12 +238,14 @@ impl Evaluator<'_> {
                 (Some(s.coef.clone()), s.scale, Some(s))
             }
         };
+        // Grid points are only scored here; the chosen one is polished by QR after the search.
+        let scoring = IrlsOptions { final_qr: false, ..self.plan.irls.clone() };
         let robust = fit::robust_with_xtx(
             &design,
             self.plan.method,
             start.as_deref(),
             scale,
-            &self.plan.irls,
+            &scoring,
             Some(&classical.xtx_inverse),
         )
         .map_err(|e| SelectError::Fit(e, sizes.to_vec()))?;
@@ -426,6 +428,15 @@ pub fn select_with_progress(
     let (ri, robust_design, robust_fit, s_at_point) = match robust {
         Some((ri, _, d, f, s)) => (ri, d, f, s),
         None => (ci, classical_design.clone(), robust_at_ci, s_at_ci),
+    };
+    // The reported robust fit: from its converged coefficients, once more with the final QR solve (one
+    // reweighting step; the joint Huber fit re-estimates its own scale and always ends with QR).
+    let robust_fit = if plan.method.needs_s_estimate() && robust_fit.scale > 0.0 {
+        let xtx = Some(robust_fit.xtx_inverse.as_slice());
+        fit::robust_with_xtx(&robust_design, plan.method, Some(&robust_fit.coef), robust_fit.scale, &plan.irls, xtx)
+            .map_err(|e| SelectError::Fit(e, points[ri].sizes.clone()))?
+    } else {
+        robust_fit
     };
     Ok(Selection {
         points,

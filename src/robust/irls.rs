@@ -24,11 +24,14 @@ pub struct IrlsOptions {
     /// relative). Measuring the change of the fit in units of the scale makes the test invariant to
     /// the units of y and of each column, unlike a test on raw coefficients.
     pub tol: f64,
+    /// Re-solve the converged weighted problem once by QR (true). The selection grid turns this off
+    /// for the points it only scores and polishes the chosen point alone.
+    pub final_qr: bool,
 }
 
 impl Default for IrlsOptions {
     fn default() -> Self {
-        IrlsOptions { max_iter: 200, tol: 1e-10 }
+        IrlsOptions { max_iter: 200, tol: 1e-10, final_qr: true }
     }
 }
 
@@ -93,12 +96,14 @@ pub fn m_fixed_scale(
     let mut w = vec![0.0; n];
     let mut r_new = vec![0.0; n];
     let mut termination = Termination::IterationLimit { iterations: opts.max_iter };
+    let mut last = start.to_vec();
     for it in 1..=opts.max_iter {
         weights_into(loss, &r, scale, &mut w);
         let next = normal_solve(x, n, p, y, &w)?;
         residuals(x, n, p, y, &next, &mut r_new);
         let moved = max_change(&r, &r_new);
         std::mem::swap(&mut r, &mut r_new);
+        last = next;
         if moved <= opts.tol * scale {
             termination = Termination::Converged { iterations: it };
             break;
@@ -108,9 +113,14 @@ pub fn m_fixed_scale(
         eprintln!("knotwise-profile: irls {termination:?}");
     }
     // The reported solve: once more by QR with the weights of the final residuals.
-    weights_into(loss, &r, scale, &mut w);
-    let coef = qr_solve(x, n, p, y, Some(&w))?.coef;
-    residuals(x, n, p, y, &coef, &mut r);
+    let coef = if opts.final_qr {
+        weights_into(loss, &r, scale, &mut w);
+        let coef = qr_solve(x, n, p, y, Some(&w))?.coef;
+        residuals(x, n, p, y, &coef, &mut r);
+        coef
+    } else {
+        last
+    };
     weights_into(loss, &r, scale, &mut w);
     Ok(MEstimate { coef, residuals: r, weights: w, scale, termination })
 }
