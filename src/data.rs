@@ -2,6 +2,7 @@
 //!
 //! Knows nothing of YAML: the caller says which columns it needs in a [`FrameRequest`].
 
+use crate::error::quote;
 use std::collections::HashMap;
 use std::path::PathBuf;
 
@@ -96,26 +97,6 @@ impl Frame {
 
 /// Columns listed in a "no such column" message before it is cut short.
 const MAX_LISTED_COLUMNS: usize = 30;
-
-/// Text in double quotes with `"`, `\` and control characters escaped (a newline shows as `\n`), so a
-/// column name or cell is shown verbatim but on one line.
-fn quote(s: &str) -> String {
-    let mut out = String::with_capacity(s.len() + 2);
-    out.push('"');
-    for c in s.chars() {
-        match c {
-            '"' => out.push_str("\\\""),
-            '\\' => out.push_str("\\\\"),
-            '\n' => out.push_str("\\n"),
-            '\r' => out.push_str("\\r"),
-            '\t' => out.push_str("\\t"),
-            c if c.is_control() => out.push_str(&format!("\\u{:04x}", c as u32)),
-            c => out.push(c),
-        }
-    }
-    out.push('"');
-    out
-}
 
 /// Trim spaces and tabs at both ends of a cell (the FrameRequest contract).
 fn trim(b: &[u8]) -> &[u8] {

@@ -139,6 +139,33 @@ pub fn nearest<'a, I: IntoIterator<Item = &'a str>>(word: &str, candidates: I) -
     best.filter(|(d, _)| *d <= limit).map(|(_, c)| c)
 }
 
+/// Text in double quotes with `"`, `\` and control characters escaped (a newline shows as `\n`), so a
+/// column name, cell or key is shown verbatim on one line. The escapes are YAML's, so the same text
+/// serves messages and the resolved spec.
+pub fn quote(s: &str) -> String {
+    let mut out = String::with_capacity(s.len() + 2);
+    out.push('"');
+    for c in s.chars() {
+        match c {
+            '"' => out.push_str("\\\""),
+            '\\' => out.push_str("\\\\"),
+            '\n' => out.push_str("\\n"),
+            '\r' => out.push_str("\\r"),
+            '\t' => out.push_str("\\t"),
+            // YAML's escapes, so the same text serves messages and the resolved spec. Besides control
+            // characters, YAML (and libyaml) refuse the byte-order mark and U+FFFE/U+FFFF unescaped
+            // anywhere in a document (found by tests/fuzz_props.rs).
+            c if c.is_control() && (c as u32) < 0x100 => out.push_str(&format!("\\x{:02x}", c as u32)),
+            c if c.is_control() || matches!(c, '\u{feff}' | '\u{fffe}' | '\u{ffff}') => {
+                out.push_str(&format!("\\u{:04x}", c as u32))
+            }
+            c => out.push(c),
+        }
+    }
+    out.push('"');
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

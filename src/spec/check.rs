@@ -92,30 +92,7 @@ fn check_date(ctx: &Ctx, date: &str) -> Result<()> {
     }
 }
 
-/// Text in double quotes with `"`, `\` and control characters escaped (a newline shows as `\n`).
-pub fn quote(s: &str) -> String {
-    let mut out = String::with_capacity(s.len() + 2);
-    out.push('"');
-    for c in s.chars() {
-        match c {
-            '"' => out.push_str("\\\""),
-            '\\' => out.push_str("\\\\"),
-            '\n' => out.push_str("\\n"),
-            '\r' => out.push_str("\\r"),
-            '\t' => out.push_str("\\t"),
-            // YAML's escapes, so the same text serves messages and the resolved spec. Besides control
-            // characters, YAML (and libyaml) refuse the byte-order mark and U+FFFE/U+FFFF unescaped
-            // anywhere in a document (found by tests/fuzz_props.rs).
-            c if c.is_control() && (c as u32) < 0x100 => out.push_str(&format!("\\x{:02x}", c as u32)),
-            c if c.is_control() || matches!(c, '\u{feff}' | '\u{fffe}' | '\u{ffff}') => {
-                out.push_str(&format!("\\u{:04x}", c as u32))
-            }
-            c => out.push(c),
-        }
-    }
-    out.push('"');
-    out
-}
+pub use crate::error::quote;
 
 fn nonempty(ctx: &Ctx, path: &str, value: String, what: &str) -> Result<String> {
     if value.trim().is_empty() {
