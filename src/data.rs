@@ -62,7 +62,8 @@ pub struct Frame {
     pub columns: Vec<Column>,
     /// Source line (1-based, header is line 1) of each used row.
     pub lines: Vec<u64>,
-    /// Row names: the id column's text, else the source line as text.
+    /// Row names from the id column (its text, or the source line where the cell is missing); empty
+    /// when no id column is requested, so large files carry no per-row strings. Use [`Frame::row_name`].
     pub ids: Vec<String>,
     pub dropped: Vec<DroppedRow>,
     /// (column, number of rows where it was missing), request order, only columns with any.
@@ -79,6 +80,14 @@ impl Frame {
     /// Number of used rows.
     pub fn n_used(&self) -> usize {
         self.lines.len()
+    }
+
+    /// The name of used row `i`: its id, else its source line as text.
+    pub fn row_name(&self, i: usize) -> String {
+        match self.ids.get(i) {
+            Some(id) => id.clone(),
+            None => self.lines.get(i).map_or_else(String::new, u64::to_string),
+        }
     }
 
     /// The column named `name`.
@@ -335,9 +344,11 @@ pub fn load(req: &FrameRequest) -> Result<Frame> {
                     utf8(&ctx, line, req.id.as_deref().unwrap_or_default(), cell)?.to_string()
                 }
             }
-            None => line.to_string(),
+            None => String::new(),
         };
-        ids.push(id);
+        if id_index.is_some() {
+            ids.push(id);
+        }
     }
 
     let missing_per_column: Vec<(String, usize)> = wanted

@@ -195,7 +195,7 @@ pub fn results(a: &Analysis, inputs: &Inputs) -> Results {
         .flagged
         .iter()
         .map(|&i| FlagOut {
-            row: a.frame.ids[i].clone(),
+            row: a.frame.row_name(i),
             line: a.frame.lines[i],
             residual: finite(rf.residuals[i]),
             scaled_residual: finite(rf.residuals[i] / scale),
@@ -223,7 +223,7 @@ pub fn results(a: &Analysis, inputs: &Inputs) -> Results {
             .high
             .iter()
             .map(|&i| LeverageOut {
-                row: a.frame.ids[i].clone(),
+                row: a.frame.row_name(i),
                 line: a.frame.lines[i],
                 leverage: finite(sens.leverage.hat[i]),
             })
@@ -273,7 +273,7 @@ pub fn results(a: &Analysis, inputs: &Inputs) -> Results {
                     .filter_map(|v| v.value)
                     .map(f64::abs)
                     .fold(None, |m: Option<f64>, v| Some(m.map_or(v, |m| m.max(v))));
-                InfluenceOut { row: a.frame.ids[inf.row].clone(), line: a.frame.lines[inf.row], dfbetas, largest }
+                InfluenceOut { row: a.frame.row_name(inf.row), line: a.frame.lines[inf.row], dfbetas, largest }
             })
             .collect(),
         influence_capped: sens.influence_capped,
@@ -355,7 +355,7 @@ pub fn rows_csv(a: &Analysis) -> String {
     for i in 0..n {
         let y = sel.robust_design.y[i];
         let mut rec = vec![
-            a.frame.ids[i].clone(),
+            a.frame.row_name(i),
             a.frame.lines[i].to_string(),
             num(y),
             num(cf.fitted[i]),

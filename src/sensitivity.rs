@@ -92,7 +92,7 @@ pub fn frame_subset(frame: &Frame, keep: &[usize]) -> Frame {
         n_read: frame.n_read,
         columns,
         lines: keep.iter().map(|&i| frame.lines[i]).collect(),
-        ids: keep.iter().map(|&i| frame.ids[i].clone()).collect(),
+        ids: if frame.ids.is_empty() { Vec::new() } else { keep.iter().map(|&i| frame.ids[i].clone()).collect() },
         dropped: frame.dropped.clone(),
         missing_per_column: frame.missing_per_column.clone(),
         warnings: Vec::new(),

@@ -100,7 +100,8 @@ fn bom_crlf_and_digest() {
     assert_eq!(f.numeric("y"), Some(&[1.0, 3.0][..]));
     assert_eq!(f.numeric("x"), Some(&[2.0, 4.0][..]));
     assert_eq!(f.lines, vec![2, 3]);
-    assert_eq!(f.ids, vec!["2", "3"]);
+    assert!(f.ids.is_empty(), "no id column: no per-row strings");
+    assert_eq!((f.row_name(0), f.row_name(1)), ("2".to_string(), "3".to_string()));
     assert_eq!(f.n_read, 2);
     // sha256 of the raw bytes (BOM included), lower-case hex.
     assert_eq!(f.sha256.len(), 64);

@@ -30,7 +30,7 @@ pub fn numeric_frame(cols: &[(&str, Vec<f64>)]) -> Frame {
             .map(|(name, v)| Column { name: name.to_string(), data: ColumnData::Numeric(v.clone()) })
             .collect(),
         lines: (0..n as u64).map(|i| i + 2).collect(),
-        ids: (0..n).map(|i| (i + 1).to_string()).collect(),
+        ids: Vec::new(),
         dropped: vec![],
         missing_per_column: vec![],
         warnings: vec![],
