@@ -411,8 +411,9 @@ fn verify(dir: &Path, data_override: Option<&Path>) -> Result<u8> {
     }
     let resolved_study = study.clone();
     let analysis = analysis::analyse(resolved_study, frame, &display)?;
-    let resolved = study.to_resolved_yaml();
-    let fresh = outputs::results(&analysis, &outputs::Inputs { spec_bytes: &[], resolved_yaml: &resolved });
+    // Hash the recorded resolved spec as it is (an edit was reported above); regenerating it would drop
+    // the pin that was switched off for the rerun.
+    let fresh = outputs::results(&analysis, &outputs::Inputs { spec_bytes: &[], resolved_yaml: &resolved_text });
     let fresh_value = serde_json::to_value(&fresh).map_err(|e| Error::new(format!("internal: {e}")))?;
     let diffs = compare::diff(&recorded, &fresh_value, Tolerance::default());
     let beyond: Vec<&compare::Difference> = diffs.iter().filter(|d| d.beyond).collect();
@@ -421,6 +422,8 @@ fn verify(dir: &Path, data_override: Option<&Path>) -> Result<u8> {
     // digest of the recorded results recomputed with the recorded spec hash instead.
     let mut fresh_for_digest = fresh.clone();
     fresh_for_digest.provenance.spec_sha256 = rec("spec-sha256");
+    // `--data` may point at a moved copy of the same bytes; the data's identity is its sha256.
+    fresh_for_digest.provenance.data_file = rec("data-file");
     let digest_rerun = outputs::digest(&fresh_for_digest);
     let mut s = String::new();
     let real_findings: Vec<&String> = findings.iter().filter(|f| !f.starts_with("note:")).collect();

@@ -242,3 +242,23 @@ fn thread_count_does_not_change_a_byte() {
     }
     let _ = std::fs::remove_dir_all(&d);
 }
+
+#[test]
+fn a_pinned_study_verifies_and_a_moved_data_file_verifies_with_data() {
+    let d = scratch("pinned");
+    let spec = copy_demo(&d);
+    let data = d.join("demo-data/cold-store-energy.csv");
+    let pin = knotwise::provenance::sha256_hex(&read(&data));
+    let text = String::from_utf8(read(&spec)).unwrap();
+    let pinned = text.replace("  id: day\n", &format!("  id: day\n  sha256: {pin}\n"));
+    assert_ne!(text, pinned);
+    std::fs::write(&spec, pinned).unwrap();
+    assert_eq!(knotwise(&["run", spec.to_str().unwrap(), "--out", "out"], &d).0, 0);
+    let (code, out, err) = knotwise(&["verify", "out"], &d);
+    assert_eq!(code, 0, "{out}{err}");
+    // The same bytes somewhere else, named with --data, still verify.
+    std::fs::rename(&data, d.join("moved.csv")).unwrap();
+    let (code, out, err) = knotwise(&["verify", "out", "--data", "moved.csv"], &d);
+    assert_eq!(code, 0, "{out}{err}");
+    let _ = std::fs::remove_dir_all(&d);
+}
