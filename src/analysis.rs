@@ -5,7 +5,7 @@
 use crate::data::{Frame, FrameRequest};
 use crate::design::{LinearSpec, ModelTerms, SmoothSpec};
 use crate::error::{Error, Result};
-use crate::fit::{self, FitError, RobustMethod};
+use crate::fit::{FitError, RobustMethod};
 use crate::robust::irls::IrlsOptions;
 use crate::robust::loss::{bisquare_tuning, huber_tuning};
 use crate::robust::sest::SOptions;
@@ -194,7 +194,6 @@ pub fn analyse_with_progress(
         study.sensitivity.influence,
     )
     .map_err(|e| fit_error(e, &selection.robust_design.names, spec_display))?;
-    let _ = fit::curve_grid;
     Ok(Analysis { study, frame, terms, grid, plan, selection, sensitivity })
 }
 

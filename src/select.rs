@@ -337,7 +337,7 @@ pub fn select_with_progress(
     progress: &dyn Fn(usize, usize),
 ) -> Result<Selection, SelectError> {
     let n_smooth = terms.smooth.len();
-    let (search, mut candidates) = candidate_points(spec, n_smooth);
+    let (search, candidates) = candidate_points(spec, n_smooth);
     let shared_step = usize::from(plan.method.needs_s_estimate() && plan.scale_mode == ScaleMode::Shared);
     let planned_grid = if search == SearchKind::CoordinateWise { spec.shared.len() } else { candidates.len() };
     let report = |done: usize| progress(done, (shared_step + planned_grid).max(done));
@@ -410,7 +410,6 @@ pub fn select_with_progress(
                 }
             }
         }
-        candidates.clear();
     } else {
         for s in &candidates {
             kept.add(ev.evaluate(s)?);

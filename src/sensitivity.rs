@@ -334,10 +334,15 @@ pub fn analyse(
             influence_capped = true;
         }
         ranked.sort_unstable();
-        let ls = linalg::qr_solve(&cd.x, cd.n, cd.p, &cd.y, None)?;
-        let inv = ls.xtx_inverse();
-        let hat = linalg::hat_values(&cd.x, cd.n, cd.p, &ls.r);
-        influence_rows = influence(cd, cf, &inv, &hat, &ranked);
+        // The classical fit carries (X'X)⁻¹; the hat values are the leverage computed above when the
+        // classical and robust designs coincide (same sizes, same rows), else one more QR.
+        let hat = if cd.sizes == rd.sizes && cd.n == rd.n {
+            leverage.hat.clone()
+        } else {
+            let ls = linalg::qr_solve(&cd.x, cd.n, cd.p, &cd.y, None)?;
+            linalg::hat_values(&cd.x, cd.n, cd.p, &ls.r)
+        };
+        influence_rows = influence(cd, cf, &cf.xtx_inverse, &hat, &ranked);
     }
 
     Ok(Sensitivity {

@@ -427,28 +427,12 @@ pub fn draw(spec: &ChartSpec) -> Result<Figure, Error> {
                         }
                     }
                 }
-                LayerKind::HLines { ys, dashed } => {
+                LayerKind::HLines { ys: at, dashed } | LayerKind::VLines { xs: at, dashed } => {
+                    let horizontal = matches!(layer.kind, LayerKind::HLines { .. });
                     let style = color.stroke_width(1);
                     let mut first = true;
-                    for &y in ys.iter().filter(|y| y.is_finite()) {
-                        let seg = vec![(x0, y), (x1, y)];
-                        let ann = if *dashed {
-                            chart.draw_series(DashedLineSeries::new(seg, 5, 4, style)).map_err(draw_error)?
-                        } else {
-                            chart.draw_series(LineSeries::new(seg, style)).map_err(draw_error)?
-                        };
-                        if first && !label.is_empty() {
-                            let d = *dashed;
-                            ann.label(label.clone()).legend(move |(x, y)| legend_line((x, y), d, 1, color));
-                        }
-                        first = false;
-                    }
-                }
-                LayerKind::VLines { xs, dashed } => {
-                    let style = color.stroke_width(1);
-                    let mut first = true;
-                    for &x in xs.iter().filter(|x| x.is_finite()) {
-                        let seg = vec![(x, y0), (x, y1)];
+                    for &v in at.iter().filter(|v| v.is_finite()) {
+                        let seg = if horizontal { vec![(x0, v), (x1, v)] } else { vec![(v, y0), (v, y1)] };
                         let ann = if *dashed {
                             chart.draw_series(DashedLineSeries::new(seg, 5, 4, style)).map_err(draw_error)?
                         } else {
