@@ -1,5 +1,5 @@
-//! Design assembly: a [`Frame`] plus the model's terms and one basis size per smooth term → a dense
-//! design matrix with readable column names and term spans.
+//! Design assembly: a [`Frame`] plus the model's terms and one basis size per smooth term → the design
+//! matrix (stored compactly, read through [`linalg::Rows`]) with readable column names and term spans.
 //!
 //! Columns, in order: `intercept`; each linear term (a numeric column, or treatment-coded dummies
 //! `column[level]` for every non-reference level); each smooth term's k − 1 centred B-spline columns
@@ -8,6 +8,7 @@
 
 use crate::basis::{Basis, BasisError, KnotPlacement};
 use crate::data::{ColumnData, Frame};
+use crate::linalg::{self, Rows};
 
 /// A linear term as the design sees it.
 #[derive(Debug, Clone, PartialEq)]
@@ -115,18 +116,37 @@ pub enum DesignError {
     MissingColumn(String),
 }
 
-/// A dense design matrix (row-major) with its response and bookkeeping.
+/// How the design stores its rows: the intercept is implicit; numeric columns are copied; a
+/// categorical term keeps, per row, the design column of its dummy (or none for the reference level);
+/// a smooth term keeps, per row, the index of its first non-zero basis function and the degree + 1
+/// values. A row is then the baseline (1 for the intercept, 0 for numeric and dummy columns, −mean for
+/// a centred basis column) plus those few entries, which is how [`Rows`] hands it to the kernels.
+#[derive(Debug, Clone, PartialEq)]
+enum Store {
+    /// A numeric linear term: its design column and values.
+    Numeric { col: usize, values: Vec<f64> },
+    /// A categorical term: per row the design column of its dummy, or `NO_DUMMY`.
+    Categorical { cols: Vec<u32> },
+    /// A smooth term: design columns start..start + m, per row the first basis index and the values.
+    Smooth { start: usize, m: usize, width: usize, first: Vec<u32>, values: Vec<f64> },
+}
+
+const NO_DUMMY: u32 = u32::MAX;
+
+/// The model's design with its response and bookkeeping, stored compactly (see [`Store`]).
 #[derive(Debug, Clone)]
 pub struct Design {
     pub n: usize,
     pub p: usize,
-    pub x: Vec<f64>,
     pub y: Vec<f64>,
     pub names: Vec<String>,
     pub spans: Vec<TermSpan>,
     pub smooth: Vec<SmoothEncoding>,
     /// Basis size per smooth term (same order as `smooth`).
     pub sizes: Vec<usize>,
+    store: Vec<Store>,
+    /// The baseline row c (see [`Store`]).
+    baseline: Vec<f64>,
 }
 
 impl Design {
@@ -165,78 +185,56 @@ impl Design {
         let y_all = frame.numeric(&terms.response).ok_or_else(|| DesignError::MissingColumn(terms.response.clone()))?;
         let mut names = vec!["intercept".to_string()];
         let mut spans = vec![TermSpan { column: "intercept".into(), kind: TermKind::Intercept, start: 0, len: 1 }];
-        enum Src<'a> {
-            Num(&'a [f64]),
-            Cat(&'a [u32], Vec<Option<usize>>),
-        }
-        let mut sources = Vec::new();
+        let mut baseline = vec![1.0];
+        let mut store = Vec::new();
         for t in &terms.linear {
             let col = frame.column(&t.column).ok_or_else(|| DesignError::MissingColumn(t.column.clone()))?;
             let start = names.len();
             match &col.data {
                 ColumnData::Numeric(v) => {
                     names.push(t.column.clone());
-                    sources.push(Src::Num(v));
+                    baseline.push(0.0);
+                    store.push(Store::Numeric { col: start, values: rows.iter().map(|&i| v[i]).collect() });
                     spans.push(TermSpan { column: t.column.clone(), kind: TermKind::Numeric, start, len: 1 });
                 }
                 ColumnData::Categorical { levels, codes, reference, .. } => {
-                    let mut map = vec![None; levels.len()];
+                    let mut map = vec![NO_DUMMY; levels.len()];
                     let mut next = 0;
                     for (li, level) in levels.iter().enumerate() {
                         if li != *reference {
                             names.push(format!("{}[{}]", t.column, level));
-                            map[li] = Some(next);
+                            baseline.push(0.0);
+                            map[li] = (start + next) as u32;
                             next += 1;
                         }
                     }
                     spans.push(TermSpan { column: t.column.clone(), kind: TermKind::Categorical, start, len: next });
-                    sources.push(Src::Cat(codes, map));
+                    let cols = rows.iter().map(|&i| map.get(codes[i] as usize).copied().unwrap_or(NO_DUMMY)).collect();
+                    store.push(Store::Categorical { cols });
                 }
             }
         }
-        let mut smooth_x = Vec::new();
         for enc in &encodings {
             let start = names.len();
-            for j in 1..=enc.columns() {
+            let m = enc.columns();
+            for j in 1..=m {
                 names.push(format!("{}:b{}", enc.column, j));
             }
-            spans.push(TermSpan { column: enc.column.clone(), kind: TermKind::Smooth, start, len: enc.columns() });
-            smooth_x.push(frame.numeric(&enc.column).ok_or_else(|| DesignError::MissingColumn(enc.column.clone()))?);
+            baseline.extend(enc.means[..m].iter().map(|mean| -mean));
+            spans.push(TermSpan { column: enc.column.clone(), kind: TermKind::Smooth, start, len: m });
+            let xs = frame.numeric(&enc.column).ok_or_else(|| DesignError::MissingColumn(enc.column.clone()))?;
+            let width = enc.basis.degree + 1;
+            let mut first = Vec::with_capacity(n);
+            let mut values = vec![0.0; n * width];
+            for (out, &i) in values.chunks_exact_mut(width).zip(rows) {
+                first.push(enc.basis.eval_nonzero(xs[i], out) as u32);
+            }
+            store.push(Store::Smooth { start, m, width, first, values });
         }
         let p = names.len();
-        let mut x = vec![0.0; n * p];
-        let mut y = Vec::with_capacity(n);
-        let max_degree = encodings.iter().map(|e| e.basis.degree).max().unwrap_or(0);
-        let mut scratch = vec![0.0; max_degree + 1];
-        for (out_row, &i) in rows.iter().enumerate() {
-            y.push(y_all[i]);
-            let row = &mut x[out_row * p..(out_row + 1) * p];
-            row[0] = 1.0;
-            let mut c = 1;
-            for src in &sources {
-                match src {
-                    Src::Num(v) => {
-                        row[c] = v[i];
-                        c += 1;
-                    }
-                    Src::Cat(codes, map) => {
-                        let width = map.iter().filter(|m| m.is_some()).count();
-                        if let Some(Some(j)) = map.get(codes[i] as usize) {
-                            row[c + j] = 1.0;
-                        }
-                        c += width;
-                    }
-                }
-            }
-            for (enc, xs) in encodings.iter().zip(&smooth_x) {
-                let m = enc.columns();
-                let d = enc.basis.degree + 1;
-                enc.eval_centred(xs[i], &mut scratch[..d], &mut row[c..c + m]);
-                c += m;
-            }
-        }
+        let y = rows.iter().map(|&i| y_all[i]).collect();
         let sizes = encodings.iter().map(|e| e.basis.size()).collect();
-        Ok(Design { n, p, x, y, names, spans, smooth: encodings, sizes })
+        Ok(Design { n, p, y, names, spans, smooth: encodings, sizes, store, baseline })
     }
 
     /// The span of smooth term `j` (in `smooth` order).
@@ -244,32 +242,150 @@ impl Design {
         self.spans.iter().filter(|s| s.kind == TermKind::Smooth).nth(j)
     }
 
-    /// Row i of the design.
-    pub fn row(&self, i: usize) -> &[f64] {
-        &self.x[i * self.p..(i + 1) * self.p]
+    /// Row i of the design, dense (for the few rows a report looks at; the kernels use [`Rows`]).
+    pub fn row(&self, i: usize) -> Vec<f64> {
+        let mut out = vec![0.0; self.p];
+        self.row_into(i, &mut out);
+        out
+    }
+
+    /// Xb for every row.
+    pub fn predict(&self, coef: &[f64]) -> Vec<f64> {
+        linalg::predict_rows(self, coef)
+    }
+
+    /// X'v, summed over the fixed row blocks in block order.
+    pub fn transpose_times(&self, v: &[f64]) -> Vec<f64> {
+        let p = self.p;
+        let parts = linalg::map_blocks(self.n, |lo, hi| {
+            let mut acc = vec![0.0; p];
+            let mut idx = vec![0usize; p];
+            let mut val = vec![0.0; p];
+            let mut sum_v = 0.0;
+            for (i, vi) in v.iter().enumerate().take(hi).skip(lo) {
+                sum_v += vi;
+                let m = self.deviation(i, &self.baseline, &mut idx, &mut val);
+                for (&j, &d) in idx[..m].iter().zip(&val[..m]) {
+                    acc[j] += d * vi;
+                }
+            }
+            for (a, c) in acc.iter_mut().zip(&self.baseline) {
+                *a += c * sum_v;
+            }
+            acc
+        });
+        parts.into_iter().fold(vec![0.0; p], |mut t, part| {
+            for (a, b) in t.iter_mut().zip(part) {
+                *a += b;
+            }
+            t
+        })
     }
 
     /// The same design restricted to the rows `keep` (ascending indices into this design).
     pub fn subset(&self, keep: &[usize]) -> Design {
-        let mut x = Vec::with_capacity(keep.len() * self.p);
-        let mut y = Vec::with_capacity(keep.len());
-        for &i in keep {
-            x.extend_from_slice(self.row(i));
-            y.push(self.y[i]);
-        }
-        Design { n: keep.len(), x, y, ..self.clone_meta() }
-    }
-
-    fn clone_meta(&self) -> Design {
+        let store = self
+            .store
+            .iter()
+            .map(|s| match s {
+                Store::Numeric { col, values } => {
+                    Store::Numeric { col: *col, values: keep.iter().map(|&i| values[i]).collect() }
+                }
+                Store::Categorical { cols } => Store::Categorical { cols: keep.iter().map(|&i| cols[i]).collect() },
+                Store::Smooth { start, m, width, first, values } => Store::Smooth {
+                    start: *start,
+                    m: *m,
+                    width: *width,
+                    first: keep.iter().map(|&i| first[i]).collect(),
+                    values: keep.iter().flat_map(|&i| values[i * width..(i + 1) * width].iter().copied()).collect(),
+                },
+            })
+            .collect();
         Design {
-            n: 0,
+            n: keep.len(),
             p: self.p,
-            x: Vec::new(),
-            y: Vec::new(),
+            y: keep.iter().map(|&i| self.y[i]).collect(),
             names: self.names.clone(),
             spans: self.spans.clone(),
             smooth: self.smooth.clone(),
             sizes: self.sizes.clone(),
+            store,
+            baseline: self.baseline.clone(),
         }
+    }
+}
+
+impl Rows for Design {
+    fn n(&self) -> usize {
+        self.n
+    }
+    fn p(&self) -> usize {
+        self.p
+    }
+    fn row_into(&self, i: usize, out: &mut [f64]) {
+        let out = &mut out[..self.p];
+        out.copy_from_slice(&self.baseline);
+        for s in &self.store {
+            match s {
+                Store::Numeric { col, values } => out[*col] = values[i],
+                Store::Categorical { cols } => {
+                    if let Some(o) = out.get_mut(cols[i] as usize) {
+                        *o = 1.0;
+                    }
+                }
+                Store::Smooth { start, m, width, first, values } => {
+                    let f = first[i] as usize;
+                    for (j, v) in values[i * width..(i + 1) * width].iter().enumerate() {
+                        if f + j < *m {
+                            out[start + f + j] += v;
+                        }
+                    }
+                }
+            }
+        }
+    }
+    fn finite(&self, lo: usize, hi: usize) -> bool {
+        self.store.iter().all(|s| match s {
+            Store::Numeric { values, .. } => values[lo..hi].iter().all(|v| v.is_finite()),
+            Store::Categorical { .. } => true,
+            Store::Smooth { width, values, .. } => values[lo * width..hi * width].iter().all(|v| v.is_finite()),
+        }) && self.baseline.iter().all(|v| v.is_finite())
+    }
+    fn baseline(&self, _lo: usize, _hi: usize) -> Vec<f64> {
+        self.baseline.clone()
+    }
+    fn deviation(&self, i: usize, c: &[f64], idx: &mut [usize], val: &mut [f64]) -> usize {
+        // The kernels pass back the baseline this design gave them; the entries below are x_i − c for
+        // exactly that c.
+        debug_assert!(c.len() == self.p);
+        let mut m = 0;
+        for s in &self.store {
+            match s {
+                Store::Numeric { col, values } => {
+                    idx[m] = *col;
+                    val[m] = values[i];
+                    m += 1;
+                }
+                Store::Categorical { cols } => {
+                    let col = cols[i];
+                    if col != NO_DUMMY {
+                        idx[m] = col as usize;
+                        val[m] = 1.0;
+                        m += 1;
+                    }
+                }
+                Store::Smooth { start, m: width_cols, width, first, values } => {
+                    let f = first[i] as usize;
+                    for (j, v) in values[i * width..(i + 1) * width].iter().enumerate() {
+                        if f + j < *width_cols {
+                            idx[m] = start + f + j;
+                            val[m] = *v;
+                            m += 1;
+                        }
+                    }
+                }
+            }
+        }
+        m
     }
 }

@@ -152,7 +152,7 @@ fn assemble(design: &Design, s: Solved) -> Fit {
     let lower = (0..p).map(|j| s.coef[j] - s.critical * std_errors[j]).collect();
     let upper = (0..p).map(|j| s.coef[j] + s.critical * std_errors[j]).collect();
     let mut residuals = vec![0.0; design.n];
-    linalg::residuals(&design.x, design.n, p, &design.y, &s.coef, &mut residuals);
+    linalg::residuals_rows(design, &design.y, &s.coef, &mut residuals);
     let fitted = design.y.iter().zip(&residuals).map(|(y, r)| y - r).collect();
     let rss = residuals.iter().map(|r| r * r).sum::<f64>();
     let tss = total_sum_of_squares(&design.y);
@@ -182,7 +182,7 @@ pub fn classical(design: &Design) -> Result<Fit, FitError> {
     if n <= p {
         return Err(FitError::TooFewRows { rows: n, columns: p });
     }
-    let ls = linalg::qr_solve(&design.x, n, p, &design.y, None)?;
+    let ls = linalg::qr_solve_rows(design, &design.y, None)?;
     let df = (n - p) as f64;
     let sigma2 = ls.rss / df;
     let inv = ls.xtx_inverse();
@@ -205,7 +205,7 @@ pub fn classical(design: &Design) -> Result<Fit, FitError> {
 
 /// The S-estimate of a design (the robust start and scale).
 pub fn s_estimate(design: &Design, options: &SOptions) -> Result<SEstimate, FitError> {
-    Ok(sest::s_estimate(&design.x, design.n, design.p, &design.y, options)?)
+    Ok(sest::s_estimate_rows(design, &design.y, options)?)
 }
 
 /// A robust fit on `design`. For S-started methods `start` gives the starting coefficients and
@@ -235,19 +235,19 @@ pub fn robust_with_xtx(
     }
     let loss = method.loss();
     let est = match method {
-        RobustMethod::HuberJoint { k } => irls::huber_joint(&design.x, n, p, &design.y, k, options)?,
+        RobustMethod::HuberJoint { k } => irls::huber_joint_rows(design, &design.y, k, options)?,
         _ => {
             let zeros = vec![0.0; p];
             let start = start.unwrap_or(&zeros);
-            irls::m_fixed_scale(&design.x, n, p, &design.y, start, scale, loss.as_ref(), options)?
+            irls::m_fixed_scale_rows(design, &design.y, start, scale, loss.as_ref(), options)?
         }
     };
     let inv = match xtx_inverse {
         Some(inv) if inv.len() == p * p => inv.to_vec(),
-        _ => linalg::qr_solve(&design.x, n, p, &design.y, None)?.xtx_inverse(),
+        _ => linalg::qr_solve_rows(design, &design.y, None)?.xtx_inverse(),
     };
     let cov = if est.scale > 0.0 {
-        sandwich::huber_sandwich(&design.x, n, p, &est.residuals, est.scale, loss.as_ref(), &inv)?
+        sandwich::huber_sandwich(n, p, &est.residuals, est.scale, loss.as_ref(), &inv)?
     } else {
         vec![0.0; p * p]
     };
@@ -317,12 +317,12 @@ pub fn curve_grid(design: &Design, j: usize, count: usize) -> Vec<f64> {
 /// The value of smooth term j's curve at each design row (its partial fit), for partial residuals.
 pub fn partial_fit(design: &Design, fit: &Fit, j: usize) -> Vec<f64> {
     match design.smooth_span(j) {
-        Some(span) => (0..design.n)
-            .map(|i| {
-                let row = design.row(i);
-                (0..span.len).map(|a| row[span.start + a] * fit.coef[span.start + a]).sum()
-            })
-            .collect(),
+        Some(span) => {
+            // The term's coefficients alone: X·b with every other coefficient zero.
+            let mut coef = vec![0.0; design.p];
+            coef[span.start..span.start + span.len].copy_from_slice(&fit.coef[span.start..span.start + span.len]);
+            design.predict(&coef)
+        }
         None => vec![0.0; design.n],
     }
 }

@@ -113,6 +113,98 @@ fn all_finite(v: &[f64]) -> bool {
     acc.iter().sum::<f64>() + tail == 0.0
 }
 
+/// A design matrix as the row kernels read it: n rows of p columns, each row a per-column baseline
+/// plus a (mostly) sparse deviation. A dense row-major slice is [`Dense`]; the model design stores its
+/// B-spline rows compactly (degree + 1 values per smooth term) and implements this trait directly, so
+/// that X'WX, residuals and the QR factor never need an n × p array.
+pub trait Rows: Sync {
+    fn n(&self) -> usize;
+    fn p(&self) -> usize;
+    /// Row i, dense, into `out[..p]`.
+    fn row_into(&self, i: usize, out: &mut [f64]);
+    /// Whether every entry of rows lo..hi is finite.
+    fn finite(&self, lo: usize, hi: usize) -> bool;
+    /// A baseline c for rows lo..hi: row i = c + d_i with d_i mostly zero. Any c gives the same
+    /// results up to rounding; a good one makes the sparse kernels cheap. Must depend on lo..hi only.
+    fn baseline(&self, lo: usize, hi: usize) -> Vec<f64>;
+    /// The entries of d_i = x_i − c that may be non-zero, in ascending column order, into `idx` and
+    /// `val` (each at least p long); returns how many.
+    fn deviation(&self, i: usize, c: &[f64], idx: &mut [usize], val: &mut [f64]) -> usize;
+    /// x_i'b for the rows lo..lo + out.len(), into `out`.
+    fn dot_rows(&self, lo: usize, coef: &[f64], out: &mut [f64]) {
+        let p = self.p();
+        let hi = lo + out.len();
+        let c = self.baseline(lo, hi);
+        let cb = dot(&c, coef);
+        let mut idx = vec![0usize; p];
+        let mut val = vec![0.0; p];
+        for (k, o) in out.iter_mut().enumerate() {
+            let m = self.deviation(lo + k, &c, &mut idx, &mut val);
+            let mut s = cb;
+            for (&j, &v) in idx[..m].iter().zip(&val[..m]) {
+                s += v * coef[j];
+            }
+            *o = s;
+        }
+    }
+}
+
+/// A dense row-major n × p matrix.
+#[derive(Debug, Clone, Copy)]
+pub struct Dense<'a> {
+    x: &'a [f64],
+    n: usize,
+    p: usize,
+}
+
+impl<'a> Dense<'a> {
+    /// # Panics
+    /// If `x.len() != n·p` (a programming error: every caller builds x with that shape).
+    pub fn new(x: &'a [f64], n: usize, p: usize) -> Self {
+        assert_eq!(x.len(), n * p, "linalg: x has {} entries, expected n·p = {}", x.len(), n * p);
+        Dense { x, n, p }
+    }
+}
+
+impl Rows for Dense<'_> {
+    fn n(&self) -> usize {
+        self.n
+    }
+    fn p(&self) -> usize {
+        self.p
+    }
+    fn row_into(&self, i: usize, out: &mut [f64]) {
+        out[..self.p].copy_from_slice(&self.x[i * self.p..(i + 1) * self.p]);
+    }
+    fn finite(&self, lo: usize, hi: usize) -> bool {
+        all_finite(&self.x[lo * self.p..hi * self.p])
+    }
+    fn baseline(&self, lo: usize, hi: usize) -> Vec<f64> {
+        block_baseline(self.x, self.p, lo, hi)
+    }
+    fn deviation(&self, i: usize, c: &[f64], idx: &mut [usize], val: &mut [f64]) -> usize {
+        let p = self.p;
+        let row = &self.x[i * p..(i + 1) * p];
+        let mut m = 0;
+        for j in 0..p {
+            let d = row[j] - c[j];
+            if d != 0.0 {
+                idx[m] = j;
+                val[m] = d;
+                m += 1;
+            }
+        }
+        m
+    }
+    fn dot_rows(&self, lo: usize, coef: &[f64], out: &mut [f64]) {
+        let p = self.p;
+        for (k, o) in out.iter_mut().enumerate() {
+            let i = lo + k;
+            *o = dot(&self.x[i * p..(i + 1) * p], coef);
+        }
+    }
+}
+
 /// Relative tolerance of the rank test: column j is deficient when |R_jj| <= RANK_TOL · ||X_j||_w,
 /// with ||X_j||_w the (weighted) Euclidean norm of column j. |R_jj| is the distance of column j from
 /// the span of columns 0..j (Golub & Van Loan 1996, §5.4, from memory), so the test asks whether
@@ -190,8 +282,8 @@ fn upper_inverse(r: &[f64], p: usize) -> Vec<f64> {
 /// Shape asserts and the cheap checks (y, weights, positive rows). The check that x is finite is fused
 /// into the block kernels, which read every row anyway; when there are too few rows it is done here so
 /// that non-finite data is still reported first.
-fn check_inputs(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>) -> Result<usize, LinalgError> {
-    assert_eq!(x.len(), n * p, "linalg: x has {} entries, expected n·p = {}", x.len(), n * p);
+fn check_inputs<R: Rows + ?Sized>(x: &R, y: &[f64], w: Option<&[f64]>) -> Result<usize, LinalgError> {
+    let (n, p) = (x.n(), x.p());
     assert_eq!(y.len(), n, "linalg: y has {} entries, expected n = {n}", y.len());
     if let Some(w) = w {
         assert_eq!(w.len(), n, "linalg: w has {} entries, expected n = {n}", w.len());
@@ -211,7 +303,7 @@ fn check_inputs(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>) -> 
         }
     };
     if positive < p {
-        if !all_finite(x) {
+        if !x.finite(0, n) {
             return Err(LinalgError::NonFinite);
         }
         return Err(LinalgError::TooFewRows { rows: positive, columns: p });
@@ -227,7 +319,12 @@ fn check_inputs(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>) -> 
 /// the earlier columns that reproduce it. RSS is recomputed at the end as Σ w_i (y_i − x_i'b)² (more
 /// accurate than the rotated-out sum when the fit is nearly exact).
 pub fn qr_solve(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>) -> Result<LeastSquares, LinalgError> {
-    qr_solve_chunked(x, n, p, y, w, CHUNK_ROWS)
+    qr_solve_rows(&Dense::new(x, n, p), y, w)
+}
+
+/// [`qr_solve`] on any [`Rows`].
+pub fn qr_solve_rows<R: Rows + ?Sized>(x: &R, y: &[f64], w: Option<&[f64]>) -> Result<LeastSquares, LinalgError> {
+    qr_solve_chunked_rows(x, y, w, CHUNK_ROWS)
 }
 
 /// [`qr_solve`] with an explicit chunk size (rows per block, at least 1). Exposed so tests can check
@@ -240,14 +337,24 @@ pub fn qr_solve_chunked(
     w: Option<&[f64]>,
     chunk: usize,
 ) -> Result<LeastSquares, LinalgError> {
-    check_inputs(x, n, p, y, w)?;
+    qr_solve_chunked_rows(&Dense::new(x, n, p), y, w, chunk)
+}
+
+fn qr_solve_chunked_rows<R: Rows + ?Sized>(
+    x: &R,
+    y: &[f64],
+    w: Option<&[f64]>,
+    chunk: usize,
+) -> Result<LeastSquares, LinalgError> {
+    let (n, p) = (x.n(), x.p());
+    check_inputs(x, y, w)?;
     let chunk = chunk.max(1);
     let width = p + 1; // augmented with y
 
     // Each block of BLOCK_ROWS rows is triangularised on its own; the block factors are then merged in
     // block order by stacking each under the running factor (a tall-skinny QR). With one block this is
     // exactly the plain streaming QR.
-    let blocks = map_blocks(n, |lo, hi| qr_block(x, p, y, w, lo, hi, chunk));
+    let blocks = map_blocks(n, |lo, hi| qr_block(x, y, w, lo, hi, chunk));
     if blocks.iter().any(|b| !b.finite) {
         return Err(LinalgError::NonFinite);
     }
@@ -294,7 +401,7 @@ pub fn qr_solve_chunked(
         coef[j] = s / r[j * p + j];
     }
 
-    let rss = weighted_rss(x, n, p, y, w, &coef);
+    let rss = weighted_rss(x, y, w, &coef);
     if !rss.is_finite() || coef.iter().any(|c| !c.is_finite()) {
         return Err(LinalgError::NonFinite);
     }
@@ -310,12 +417,14 @@ struct BlockQr {
 }
 
 /// Streaming Householder QR of rows lo..hi in chunks of `chunk` positively weighted rows.
-fn qr_block(x: &[f64], p: usize, y: &[f64], w: Option<&[f64]>, lo: usize, hi: usize, chunk: usize) -> BlockQr {
+fn qr_block<R: Rows + ?Sized>(x: &R, y: &[f64], w: Option<&[f64]>, lo: usize, hi: usize, chunk: usize) -> BlockQr {
+    let p = x.p();
     let width = p + 1;
     // Work array: rows 0..p hold [R | Q'y head]; rows p..p+chunk hold the incoming block.
     let mut a = vec![0.0; (p + chunk) * width];
     let mut colnorm2 = vec![0.0; p];
-    let finite = all_finite(&x[lo * p..hi * p]);
+    let finite = x.finite(lo, hi);
+    let mut src = vec![0.0; p];
     let mut rows = 0;
     let mut i = lo;
     while i < hi {
@@ -326,8 +435,8 @@ fn qr_block(x: &[f64], p: usize, y: &[f64], w: Option<&[f64]>, lo: usize, hi: us
             if wi > 0.0 {
                 let sw = wi.sqrt();
                 let dst = &mut a[(p + m) * width..(p + m + 1) * width];
-                let src = &x[i * p..(i + 1) * p];
-                for ((d, s), c) in dst[..p].iter_mut().zip(src).zip(colnorm2.iter_mut()) {
+                x.row_into(i, &mut src);
+                for ((d, s), c) in dst[..p].iter_mut().zip(&src).zip(colnorm2.iter_mut()) {
                     let v = sw * s;
                     *d = v;
                     *c += v * v;
@@ -429,15 +538,18 @@ fn aliased_columns(r: &[f64], p: usize, j: usize, colnorm2: &[f64]) -> Vec<usize
 }
 
 /// Σ w_i (y_i − x_i'b)², summed in row order within each block and over blocks in block order.
-fn weighted_rss(x: &[f64], n: usize, p: usize, y: &[f64], w: Option<&[f64]>, coef: &[f64]) -> f64 {
-    sum_blocks(n, |lo, hi| {
+fn weighted_rss<R: Rows + ?Sized>(x: &R, y: &[f64], w: Option<&[f64]>, coef: &[f64]) -> f64 {
+    sum_blocks(x.n(), |lo, hi| {
+        let mut fit = vec![0.0; hi - lo];
+        x.dot_rows(lo, coef, &mut fit);
         let mut rss = 0.0;
-        for i in lo..hi {
+        for (k, f) in fit.iter().enumerate() {
+            let i = lo + k;
             let wi = w.map_or(1.0, |w| w[i]);
             if wi == 0.0 {
                 continue;
             }
-            let e = y[i] - dot(&x[i * p..(i + 1) * p], coef);
+            let e = y[i] - f;
             rss += wi * e * e;
         }
         rss
@@ -462,9 +574,15 @@ fn dot(row: &[f64], coef: &[f64]) -> f64 {
 /// numerically rank deficient in the squared problem — the solve falls back to [`qr_solve`], which
 /// either succeeds with more accuracy or names the aliased columns.
 pub fn normal_solve(x: &[f64], n: usize, p: usize, y: &[f64], w: &[f64]) -> Result<Vec<f64>, LinalgError> {
-    check_inputs(x, n, p, y, Some(w))?;
+    normal_solve_rows(&Dense::new(x, n, p), y, w)
+}
+
+/// [`normal_solve`] on any [`Rows`].
+pub fn normal_solve_rows<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64]) -> Result<Vec<f64>, LinalgError> {
+    let (n, p) = (x.n(), x.p());
+    check_inputs(x, y, Some(w))?;
     let width = p + 1;
-    let parts = map_blocks(n, |lo, hi| xtwx_block(x, p, y, w, lo, hi));
+    let parts = map_blocks(n, |lo, hi| xtwx_block(x, y, w, lo, hi));
     if parts.iter().any(|(_, finite)| !finite) {
         return Err(LinalgError::NonFinite);
     }
@@ -476,7 +594,7 @@ pub fn normal_solve(x: &[f64], n: usize, p: usize, y: &[f64], w: &[f64]) -> Resu
     }
     match cholesky_solve(&mut total, p) {
         Some(coef) if coef.iter().all(|c| c.is_finite()) => Ok(coef),
-        _ => qr_solve(x, n, p, y, Some(w)).map(|ls| ls.coef),
+        _ => qr_solve_rows(x, y, Some(w)).map(|ls| ls.coef),
     }
 }
 
@@ -490,13 +608,14 @@ pub fn normal_solve(x: &[f64], n: usize, p: usize, y: &[f64], w: &[f64]) -> Resu
 /// X'WX = Σ w d d' + (Σ w d) c' + c (Σ w d)' + (Σ w) c c' and X'Wy = Σ w y d + (Σ w y) c,
 /// which costs (nonzeros of d_i)² per row instead of p². Any baseline gives the same matrix up to
 /// rounding; a good one only makes it cheaper. Rows with zero weight are skipped.
-fn xtwx_block(x: &[f64], p: usize, y: &[f64], w: &[f64], lo: usize, hi: usize) -> (Vec<f64>, bool) {
+fn xtwx_block<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64], lo: usize, hi: usize) -> (Vec<f64>, bool) {
+    let p = x.p();
     let width = p + 1;
     let mut part = vec![0.0; p * width];
-    if !all_finite(&x[lo * p..hi * p]) {
+    if !x.finite(lo, hi) {
         return (part, false);
     }
-    let c = block_baseline(x, p, lo, hi);
+    let c = x.baseline(lo, hi);
     let mut sum_wd = vec![0.0; p];
     let mut sum_w = 0.0;
     let mut sum_wy = 0.0;
@@ -507,16 +626,7 @@ fn xtwx_block(x: &[f64], p: usize, y: &[f64], w: &[f64], lo: usize, hi: usize) -
         if wi == 0.0 {
             continue;
         }
-        let row = &x[i * p..(i + 1) * p];
-        let mut m = 0;
-        for j in 0..p {
-            let d = row[j] - c[j];
-            if d != 0.0 {
-                idx[m] = j;
-                val[m] = d;
-                m += 1;
-            }
-        }
+        let m = x.deviation(i, &c, &mut idx, &mut val);
         let wy = wi * y[i];
         sum_w += wi;
         sum_wy += wy;
@@ -609,13 +719,25 @@ fn cholesky_solve(a: &mut [f64], p: usize) -> Option<Vec<f64>> {
 
 /// Residuals y − Xb into `out` (rows in parallel; each value is computed the same way on any thread).
 pub fn residuals(x: &[f64], n: usize, p: usize, y: &[f64], coef: &[f64], out: &mut [f64]) {
-    let out = &mut out[..n];
+    residuals_rows(&Dense::new(x, n, p), y, coef, out)
+}
+
+/// [`residuals`] on any [`Rows`].
+pub fn residuals_rows<R: Rows + ?Sized>(x: &R, y: &[f64], coef: &[f64], out: &mut [f64]) {
+    let out = &mut out[..x.n()];
     fill_blocks(out, |lo, part| {
-        for (k, o) in part.iter_mut().enumerate() {
-            let i = lo + k;
-            *o = y[i] - dot(&x[i * p..(i + 1) * p], coef);
+        x.dot_rows(lo, coef, part);
+        for (o, yi) in part.iter_mut().zip(&y[lo..]) {
+            *o = yi - *o;
         }
     });
+}
+
+/// Fitted values Xb (rows in parallel).
+pub fn predict_rows<R: Rows + ?Sized>(x: &R, coef: &[f64]) -> Vec<f64> {
+    let mut out = vec![0.0; x.n()];
+    fill_blocks(&mut out, |lo, part| x.dot_rows(lo, coef, part));
+    out
 }
 
 /// Hat values h_i = x_i'(X'X)^-1 x_i from the R factor of an unweighted QR.
@@ -624,6 +746,12 @@ pub fn residuals(x: &[f64], n: usize, p: usize, y: &[f64], coef: &[f64], out: &m
 /// the hat matrix; the R-based evaluation avoids forming (X'X)^-1). A zero diagonal of R (impossible for
 /// an R from a successful [`qr_solve`]) contributes nothing rather than NaN. Rows run in parallel.
 pub fn hat_values(x: &[f64], n: usize, p: usize, r: &[f64]) -> Vec<f64> {
+    hat_values_rows(&Dense::new(x, n, p), r)
+}
+
+/// [`hat_values`] on any [`Rows`].
+pub fn hat_values_rows<R: Rows + ?Sized>(x: &R, r: &[f64]) -> Vec<f64> {
+    let (n, p) = (x.n(), x.p());
     let mut h = vec![0.0; n];
     // Reciprocal-free: the same divisions as a row-by-row loop, R read column-wise from its transpose.
     let mut rt = vec![0.0; p * p];
@@ -634,9 +762,9 @@ pub fn hat_values(x: &[f64], n: usize, p: usize, r: &[f64]) -> Vec<f64> {
     }
     fill_blocks(&mut h, |lo, part| {
         let mut u = vec![0.0; p];
+        let mut row = vec![0.0; p];
         for (k, hk) in part.iter_mut().enumerate() {
-            let i = lo + k;
-            let row = &x[i * p..(i + 1) * p];
+            x.row_into(lo + k, &mut row);
             let mut s2 = 0.0;
             for j in 0..p {
                 let mut s = row[j];

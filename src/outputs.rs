@@ -338,10 +338,8 @@ pub fn rows_csv(a: &Analysis) -> String {
         flagged[i] = true;
     }
     // The refit without flagged rows predicts every row (same encoding), so its columns are full.
-    let without_pred: Option<Vec<f64>> = sens.classical_without.as_ref().map(|(_, f)| {
-        let d = &sel.classical_design;
-        (0..n).map(|i| d.row(i).iter().zip(&f.coef).map(|(x, b)| x * b).sum()).collect()
-    });
+    let without_pred: Option<Vec<f64>> =
+        sens.classical_without.as_ref().map(|(_, f)| sel.classical_design.predict(&f.coef));
     let mut w = csv::WriterBuilder::new().terminator(csv::Terminator::Any(b'\n')).from_writer(Vec::new());
     let mut header =
         vec!["row", "line", "observed", "classical-fitted", "classical-residual", "robust-fitted", "robust-residual"];

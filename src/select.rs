@@ -261,12 +261,7 @@ impl Evaluator<'_> {
 /// (X'X)⁻¹ X'v: the least-squares coefficients of `v` on the design.
 fn project(design: &Design, xtx_inverse: &[f64], v: &[f64]) -> Vec<f64> {
     let p = design.p;
-    let mut xtv = vec![0.0; p];
-    for (i, vi) in v.iter().enumerate() {
-        for (a, x) in xtv.iter_mut().zip(design.row(i)) {
-            *a += x * vi;
-        }
-    }
+    let xtv = design.transpose_times(v);
     (0..p).map(|j| (0..p).map(|k| xtx_inverse[j * p + k] * xtv[k]).sum()).collect()
 }
 

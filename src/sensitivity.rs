@@ -61,8 +61,8 @@ pub struct Leverage {
 }
 
 pub fn leverage(design: &Design) -> Result<Leverage, FitError> {
-    let ls = linalg::qr_solve(&design.x, design.n, design.p, &design.y, None)?;
-    let hat = linalg::hat_values(&design.x, design.n, design.p, &ls.r);
+    let ls = linalg::qr_solve_rows(design, &design.y, None)?;
+    let hat = linalg::hat_values_rows(design, &ls.r);
     let threshold = 2.0 * design.p as f64 / design.n as f64;
     let high = hat.iter().enumerate().filter(|(_, h)| **h > threshold).map(|(i, _)| i).collect();
     Ok(Leverage { hat, threshold, high })
@@ -339,8 +339,8 @@ pub fn analyse(
         let hat = if cd.sizes == rd.sizes && cd.n == rd.n {
             leverage.hat.clone()
         } else {
-            let ls = linalg::qr_solve(&cd.x, cd.n, cd.p, &cd.y, None)?;
-            linalg::hat_values(&cd.x, cd.n, cd.p, &ls.r)
+            let ls = linalg::qr_solve_rows(cd, &cd.y, None)?;
+            linalg::hat_values_rows(cd, &ls.r)
         };
         influence_rows = influence(cd, cf, &cf.xtx_inverse, &hat, &ranked);
     }

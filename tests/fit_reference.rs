@@ -127,7 +127,7 @@ fn leverage_and_leave_one_out_influence() {
     for (got, want) in lev.hat.iter().zip(vecf(&reference["stackloss"]["hat"])) {
         assert_close(*got, want, 1e-10, "hat values vs statsmodels get_influence().hat_matrix_diag");
     }
-    let ls = knotwise::linalg::qr_solve(&design.x, design.n, design.p, &design.y, None).unwrap();
+    let ls = knotwise::linalg::qr_solve_rows(&design, &design.y, None).unwrap();
     let inv = ls.xtx_inverse();
     let rows: Vec<usize> = (0..21).collect();
     let infl = knotwise::sensitivity::influence(&design, &f, &inv, &lev.hat, &rows);

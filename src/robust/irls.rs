@@ -11,7 +11,7 @@
 use super::loss::Loss;
 use super::scale::mad_about_zero;
 use super::{check_data, exact_fit_threshold, RobustError};
-use crate::linalg::{normal_solve, qr_solve, residuals};
+use crate::linalg::{normal_solve_rows, qr_solve_rows, residuals_rows, Dense, Rows};
 use crate::termination::Termination;
 
 /// Settings of an IRLS fit.
@@ -76,13 +76,26 @@ pub fn m_fixed_scale(
     loss: &dyn Loss,
     opts: &IrlsOptions,
 ) -> Result<MEstimate, RobustError> {
-    check_data(x, n, p, y)?;
+    m_fixed_scale_rows(&Dense::new(x, n, p), y, start, scale, loss, opts)
+}
+
+/// [`m_fixed_scale`] on any [`Rows`] (the model design's compact rows).
+pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
+    x: &R,
+    y: &[f64],
+    start: &[f64],
+    scale: f64,
+    loss: &dyn Loss,
+    opts: &IrlsOptions,
+) -> Result<MEstimate, RobustError> {
+    let (n, p) = (x.n(), x.p());
+    check_data(x, y)?;
     assert_eq!(start.len(), p, "m_fixed_scale: start has {} entries, expected p = {p}", start.len());
     if !scale.is_finite() || scale < 0.0 || start.iter().any(|v| !v.is_finite()) {
         return Err(RobustError::NonFinite);
     }
     let mut r = vec![0.0; n];
-    residuals(x, n, p, y, start, &mut r);
+    residuals_rows(x, y, start, &mut r);
     if scale <= exact_fit_threshold(y) {
         return Ok(MEstimate {
             coef: start.to_vec(),
@@ -99,8 +112,8 @@ pub fn m_fixed_scale(
     let mut last = start.to_vec();
     for it in 1..=opts.max_iter {
         weights_into(loss, &r, scale, &mut w);
-        let next = normal_solve(x, n, p, y, &w)?;
-        residuals(x, n, p, y, &next, &mut r_new);
+        let next = normal_solve_rows(x, y, &w)?;
+        residuals_rows(x, y, &next, &mut r_new);
         let moved = max_change(&r, &r_new);
         std::mem::swap(&mut r, &mut r_new);
         last = next;
@@ -115,8 +128,8 @@ pub fn m_fixed_scale(
     // The reported solve: once more by QR with the weights of the final residuals.
     let coef = if opts.final_qr {
         weights_into(loss, &r, scale, &mut w);
-        let coef = qr_solve(x, n, p, y, Some(&w))?.coef;
-        residuals(x, n, p, y, &coef, &mut r);
+        let coef = qr_solve_rows(x, y, Some(&w))?.coef;
+        residuals_rows(x, y, &coef, &mut r);
         coef
     } else {
         last
@@ -140,15 +153,26 @@ pub fn huber_joint(
     k: f64,
     opts: &IrlsOptions,
 ) -> Result<MEstimate, RobustError> {
-    check_data(x, n, p, y)?;
+    huber_joint_rows(&Dense::new(x, n, p), y, k, opts)
+}
+
+/// [`huber_joint`] on any [`Rows`].
+pub fn huber_joint_rows<R: Rows + ?Sized>(
+    x: &R,
+    y: &[f64],
+    k: f64,
+    opts: &IrlsOptions,
+) -> Result<MEstimate, RobustError> {
+    let n = x.n();
+    check_data(x, y)?;
     if !(k > 0.0) || !k.is_finite() {
         return Err(RobustError::NonFinite);
     }
     let loss = super::loss::Huber { k };
     let tiny = exact_fit_threshold(y);
-    let mut coef = qr_solve(x, n, p, y, None)?.coef;
+    let mut coef = qr_solve_rows(x, y, None)?.coef;
     let mut r = vec![0.0; n];
-    residuals(x, n, p, y, &coef, &mut r);
+    residuals_rows(x, y, &coef, &mut r);
     let mut s = mad_about_zero(&r);
     let mut w = vec![1.0; n];
     let mut r_new = vec![0.0; n];
@@ -165,8 +189,8 @@ pub fn huber_joint(
     let mut termination = Termination::IterationLimit { iterations: opts.max_iter };
     for it in 1..=opts.max_iter {
         weights_into(&loss, &r, s, &mut w);
-        coef = normal_solve(x, n, p, y, &w)?;
-        residuals(x, n, p, y, &coef, &mut r_new);
+        coef = normal_solve_rows(x, y, &w)?;
+        residuals_rows(x, y, &coef, &mut r_new);
         let s_new = mad_about_zero(&r_new);
         if !(s_new > tiny) {
             return Ok(collapsed(coef, r_new, it));
@@ -183,8 +207,8 @@ pub fn huber_joint(
     // Reported solve by QR with the weights of the final residuals and scale; the scale is then the MAD
     // of the reported residuals, as in the iteration.
     weights_into(&loss, &r, s, &mut w);
-    coef = qr_solve(x, n, p, y, Some(&w))?.coef;
-    residuals(x, n, p, y, &coef, &mut r);
+    coef = qr_solve_rows(x, y, Some(&w))?.coef;
+    residuals_rows(x, y, &coef, &mut r);
     let s_final = mad_about_zero(&r);
     if !(s_final > tiny) {
         return Ok(collapsed(coef, r, 0));

@@ -8,7 +8,7 @@ pub mod sandwich;
 pub mod scale;
 pub mod sest;
 
-use crate::linalg::LinalgError;
+use crate::linalg::{LinalgError, Rows};
 
 /// Why a robust fit could not be computed.
 #[derive(Debug, Clone, PartialEq)]
@@ -40,13 +40,13 @@ impl From<LinalgError> for RobustError {
 
 /// Data checks shared by every robust entry point: shapes (a programming error, so asserted), finite
 /// values, and n > p.
-pub(crate) fn check_data(x: &[f64], n: usize, p: usize, y: &[f64]) -> Result<(), RobustError> {
-    assert_eq!(x.len(), n * p, "robust: x has {} entries, expected n·p = {}", x.len(), n * p);
+pub(crate) fn check_data<R: Rows + ?Sized>(x: &R, y: &[f64]) -> Result<(), RobustError> {
+    let (n, p) = (x.n(), x.p());
     assert_eq!(y.len(), n, "robust: y has {} entries, expected n = {n}", y.len());
     if n <= p {
         return Err(RobustError::TooFewRows { rows: n, columns: p });
     }
-    if x.iter().chain(y.iter()).any(|v| !v.is_finite()) {
+    if y.iter().any(|v| !v.is_finite()) || !x.finite(0, n) {
         return Err(RobustError::NonFinite);
     }
     Ok(())

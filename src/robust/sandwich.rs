@@ -17,14 +17,13 @@ use super::RobustError;
 ///
 /// This is the "H1" covariance, statsmodels' RLM default, and reproduces it. The result is invariant
 /// to a constant factor in ψ (ψ and ψ' scale together), so the bisquare's ψ convention in
-/// [`super::loss`] does not matter. `xtx_inv` is p × p row-major; the result is too.
+/// [`super::loss`] does not matter. `xtx_inv` is p × p row-major (of the n × p design); the result is too.
 ///
 /// Errors: n ≤ p is `TooFewRows`; m ≤ 1e-12·max|ψ'| (no information: every scaled residual past the
 /// Huber corner, or an average in the bisquare's descending part) is `DegenerateCovariance`; non-finite
 /// inputs are `NonFinite`. A zero scale gives a zero matrix (an exact fit has no sampling spread under
 /// this formula).
 pub fn huber_sandwich(
-    x: &[f64],
     n: usize,
     p: usize,
     residuals: &[f64],
@@ -32,7 +31,6 @@ pub fn huber_sandwich(
     loss: &dyn Loss,
     xtx_inv: &[f64],
 ) -> Result<Vec<f64>, RobustError> {
-    assert_eq!(x.len(), n * p, "huber_sandwich: x has {} entries, expected n·p", x.len());
     assert_eq!(residuals.len(), n, "huber_sandwich: {} residuals, expected n = {n}", residuals.len());
     assert_eq!(xtx_inv.len(), p * p, "huber_sandwich: xtx_inv has {} entries, expected p²", xtx_inv.len());
     if n <= p {

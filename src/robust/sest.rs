@@ -14,7 +14,7 @@ use rand_core::{RngCore, SeedableRng};
 use super::loss::{Bisquare, Loss};
 use super::scale::{m_scale, mad_about_zero, mean_rho, MSCALE_B, MSCALE_C};
 use super::{check_data, exact_fit_threshold, RobustError};
-use crate::linalg::{as_worker, normal_solve, qr_solve, residuals};
+use crate::linalg::{as_worker, normal_solve, normal_solve_rows, qr_solve, residuals, residuals_rows, Dense, Rows};
 use crate::termination::Termination;
 
 /// Settings of the fast-S search (defaults from Salibián-Barrera & Yohai 2006).
@@ -121,7 +121,13 @@ struct Candidate {
 /// A scale at or below 1e-12·max|y| (an exact fit of at least half the rows) ends the search with
 /// `ScaleCollapsed` and scale 0.
 pub fn s_estimate(x: &[f64], n: usize, p: usize, y: &[f64], opts: &SOptions) -> Result<SEstimate, RobustError> {
-    check_data(x, n, p, y)?;
+    s_estimate_rows(&Dense::new(x, n, p), y, opts)
+}
+
+/// [`s_estimate`] on any [`Rows`] (the model design's compact rows).
+pub fn s_estimate_rows<R: Rows + ?Sized>(x: &R, y: &[f64], opts: &SOptions) -> Result<SEstimate, RobustError> {
+    let (n, p) = (x.n(), x.p());
+    check_data(x, y)?;
     let tiny = exact_fit_threshold(y);
     if p == 0 {
         let s = m_scale(y, MSCALE_C, MSCALE_B, None, MSCALE_MAX_ITER, MSCALE_TOL);
@@ -139,23 +145,25 @@ pub fn s_estimate(x: &[f64], n: usize, p: usize, y: &[f64], opts: &SOptions) -> 
     let search_timer = super::profile::stage(|| "s-estimate random search".into());
     let mut rng = ChaCha8Rng::seed_from_u64(opts.seed);
 
-    // The rows of the search.
-    let (xs, ys, ns) = if n > opts.search_rows.max(p + 1) {
+    // The rows of the search, as a dense copy (all rows when n is small).
+    let chosen: Vec<usize> = if n > opts.search_rows.max(p + 1) {
         let k = opts.search_rows.max(p + 1);
         let mut idx: Vec<usize> = (0..n).collect();
         partial_shuffle(&mut rng, &mut idx, k);
         let mut chosen = idx[..k].to_vec();
         chosen.sort_unstable();
-        let mut xs = Vec::with_capacity(k * p);
-        let mut ys = Vec::with_capacity(k);
-        for &i in &chosen {
-            xs.extend_from_slice(&x[i * p..(i + 1) * p]);
-            ys.push(y[i]);
-        }
-        (xs, ys, k)
+        chosen
     } else {
-        (x.to_vec(), y.to_vec(), n)
+        (0..n).collect()
     };
+    let ns = chosen.len();
+    let mut xs = vec![0.0; ns * p];
+    let mut ys = Vec::with_capacity(ns);
+    for (a, &i) in chosen.iter().enumerate() {
+        x.row_into(i, &mut xs[a * p..(a + 1) * p]);
+        ys.push(y[i]);
+    }
+    drop(chosen);
 
     let wanted = opts.subsamples.max(1);
     let keep = opts.best_candidates.max(1);
@@ -229,19 +237,19 @@ pub fn s_estimate(x: &[f64], n: usize, p: usize, y: &[f64], opts: &SOptions) -> 
         let loose = SOptions { tol: opts.tol.max(1e-6), ..opts.clone() };
         let mut leader: Option<Candidate> = None;
         for cand in best {
-            let (c, _) = iterate_to_convergence(&xs, ns, p, &ys, cand, &loose, tiny);
+            let (c, _) = iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, cand, &loose, tiny);
             if leader.as_ref().is_none_or(|b| c.scale < b.scale) {
                 leader = Some(c);
             }
         }
-        let on_subset = leader.map(|c| iterate_to_convergence(&xs, ns, p, &ys, c, opts, tiny));
+        let on_subset = leader.map(|c| iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, c, opts, tiny));
         drop(xs);
         drop(ys);
         let Some((c, subset_term)) = on_subset else {
             return Err(RobustError::AllSubsamplesSingular { tried: attempts });
         };
         let mut r = vec![0.0; n];
-        crate::linalg::residuals(x, n, p, y, &c.coef, &mut r);
+        residuals_rows(x, y, &c.coef, &mut r);
         let full = super::scale::m_scale(
             &r,
             super::scale::MSCALE_C,
@@ -269,14 +277,14 @@ pub fn s_estimate(x: &[f64], n: usize, p: usize, y: &[f64], opts: &SOptions) -> 
     let mut leader: Option<Candidate> = None;
     for cand in best {
         let _t = super::profile::stage(|| "s-estimate race of one candidate".into());
-        let (c, _) = iterate_to_convergence(x, n, p, y, cand, &loose, tiny);
+        let (c, _) = iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, cand, &loose, tiny);
         if leader.as_ref().is_none_or(|b| c.scale < b.scale) {
             leader = Some(c);
         }
     }
     let Some(leader) = leader else { return Err(RobustError::AllSubsamplesSingular { tried: attempts }) };
     let _t = super::profile::stage(|| "s-estimate final iteration of the winner".into());
-    let (c, termination) = iterate_to_convergence(x, n, p, y, leader, opts, tiny);
+    let (c, termination) = iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, leader, opts, tiny);
     drop(_t);
     if c.coef.iter().any(|v| !v.is_finite()) || !c.scale.is_finite() {
         return Err(RobustError::NonFinite);
@@ -382,21 +390,20 @@ fn collapse_check(value: f64, term: Termination, tiny: f64) -> (f64, Termination
 /// M-scale of the new residuals solved to convergence from the current one (the step cannot increase
 /// the scale: Salibián-Barrera & Yohai 2006, from memory). A singular weighted design ends the
 /// iteration with the current candidate and `IterationLimit` (it did not meet the tolerance).
-fn iterate_to_convergence(
-    x: &[f64],
-    n: usize,
-    p: usize,
+fn iterate_to_convergence<R: Rows + ?Sized>(
+    x: &R,
     y: &[f64],
     cand: Candidate,
     opts: &SOptions,
     tiny: f64,
 ) -> (Candidate, Termination) {
+    let n = x.n();
     let rho = Bisquare { c: MSCALE_C };
     let mut coef = cand.coef;
     let mut r = vec![0.0; n];
     let mut r_new = vec![0.0; n];
     let mut w = vec![0.0; n];
-    residuals(x, n, p, y, &coef, &mut r);
+    residuals_rows(x, y, &coef, &mut r);
     let start = if cand.scale > tiny { Some(cand.scale) } else { None };
     let mut s = m_scale(&r, MSCALE_C, MSCALE_B, start, MSCALE_MAX_ITER, MSCALE_TOL).value;
     if !(s > tiny) {
@@ -406,11 +413,11 @@ fn iterate_to_convergence(
         for (wi, ri) in w.iter_mut().zip(r.iter()) {
             *wi = rho.weight(ri / s);
         }
-        let next = match normal_solve(x, n, p, y, &w) {
+        let next = match normal_solve_rows(x, y, &w) {
             Ok(c) => c,
             Err(_) => return (Candidate { coef, scale: s }, Termination::IterationLimit { iterations: it - 1 }),
         };
-        residuals(x, n, p, y, &next, &mut r_new);
+        residuals_rows(x, y, &next, &mut r_new);
         let s_new = m_scale(&r_new, MSCALE_C, MSCALE_B, Some(s), MSCALE_MAX_ITER, MSCALE_TOL).value;
         if !(s_new > tiny) {
             return (Candidate { coef: next, scale: 0.0 }, Termination::ScaleCollapsed { iterations: it });
