@@ -99,6 +99,41 @@ pub fn fill_blocks(out: &mut [f64], f: impl Fn(usize, &mut [f64]) + Sync) {
     });
 }
 
+/// `f(start, a_block, b_block)` for every fixed block of [`BLOCK_ROWS`] rows, with the block's parts
+/// of two row arrays of equal length to fill; results in block order (as [`map_blocks`]).
+pub fn map_blocks_mut2<T: Send>(
+    a: &mut [f64],
+    b: &mut [f64],
+    f: impl Fn(usize, &mut [f64], &mut [f64]) -> T + Sync,
+) -> Vec<T> {
+    assert_eq!(a.len(), b.len(), "map_blocks_mut2: arrays of different lengths");
+    let n = a.len();
+    let nb = n.div_ceil(BLOCK_ROWS);
+    let t = available_threads(nb);
+    let mut blocks: Vec<(usize, &mut [f64], &mut [f64])> = a
+        .chunks_mut(BLOCK_ROWS)
+        .zip(b.chunks_mut(BLOCK_ROWS))
+        .enumerate()
+        .map(|(k, (x, y))| (k * BLOCK_ROWS, x, y))
+        .collect();
+    if t <= 1 {
+        return blocks.into_iter().map(|(lo, x, y)| f(lo, x, y)).collect();
+    }
+    let per = nb.div_ceil(t);
+    std::thread::scope(|s| {
+        let f = &f;
+        let mut handles = Vec::new();
+        while !blocks.is_empty() {
+            let rest = blocks.split_off(per.min(blocks.len()));
+            let mine = std::mem::replace(&mut blocks, rest);
+            handles.push(
+                s.spawn(move || as_worker(|| mine.into_iter().map(|(lo, x, y)| f(lo, x, y)).collect::<Vec<T>>())),
+            );
+        }
+        handles.into_iter().flat_map(|h| h.join().expect("linalg worker thread panicked")).collect()
+    })
+}
+
 fn all_finite(v: &[f64]) -> bool {
     // v·0 is NaN exactly when v is non-finite; four independent accumulators keep the loop from being
     // one long chain of dependent additions.
@@ -610,15 +645,11 @@ pub fn normal_solve_rows<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64]) -> Resul
 /// rounding; a good one only makes it cheaper. Rows with zero weight are skipped.
 fn xtwx_block<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64], lo: usize, hi: usize) -> (Vec<f64>, bool) {
     let p = x.p();
-    let width = p + 1;
-    let mut part = vec![0.0; p * width];
     if !x.finite(lo, hi) {
-        return (part, false);
+        return (vec![0.0; p * (p + 1)], false);
     }
     let c = x.baseline(lo, hi);
-    let mut sum_wd = vec![0.0; p];
-    let mut sum_w = 0.0;
-    let mut sum_wy = 0.0;
+    let mut acc = NormalAcc::new(p);
     let mut idx = vec![0usize; p];
     let mut val = vec![0.0; p];
     for i in lo..hi {
@@ -627,29 +658,133 @@ fn xtwx_block<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64], lo: usize, hi: usiz
             continue;
         }
         let m = x.deviation(i, &c, &mut idx, &mut val);
-        let wy = wi * y[i];
-        sum_w += wi;
-        sum_wy += wy;
-        for a in 0..m {
+        acc.add(wi, y[i], &idx[..m], &val[..m]);
+    }
+    (acc.finish(&c), true)
+}
+
+/// One block's running sums for [`xtwx_block`]: Σ w d d' (upper triangle) and Σ w y d in `part`,
+/// Σ w d, Σ w and Σ w y for the baseline terms.
+struct NormalAcc {
+    p: usize,
+    part: Vec<f64>,
+    sum_wd: Vec<f64>,
+    sum_w: f64,
+    sum_wy: f64,
+}
+
+impl NormalAcc {
+    fn new(p: usize) -> Self {
+        NormalAcc { p, part: vec![0.0; p * (p + 1)], sum_wd: vec![0.0; p], sum_w: 0.0, sum_wy: 0.0 }
+    }
+
+    /// Add row i with weight `wi`, response `yi` and deviation entries (ascending columns).
+    #[inline]
+    fn add(&mut self, wi: f64, yi: f64, idx: &[usize], val: &[f64]) {
+        let (p, width) = (self.p, self.p + 1);
+        let wy = wi * yi;
+        self.sum_w += wi;
+        self.sum_wy += wy;
+        for a in 0..idx.len() {
             let ja = idx[a];
             let wd = wi * val[a];
-            sum_wd[ja] += wd;
-            let dst = &mut part[ja * width..(ja + 1) * width];
-            for b in a..m {
+            self.sum_wd[ja] += wd;
+            let dst = &mut self.part[ja * width..(ja + 1) * width];
+            for b in a..idx.len() {
                 dst[idx[b]] += wd * val[b];
             }
             dst[p] += val[a] * wy;
         }
     }
-    // Add the baseline terms to the upper triangle.
-    for j in 0..p {
-        let dst = &mut part[j * width..(j + 1) * width];
-        for k in j..p {
-            dst[k] += sum_wd[j] * c[k] + c[j] * sum_wd[k] + sum_w * c[j] * c[k];
+
+    /// The upper triangle of [X'WX | X'Wy] with the baseline terms added.
+    fn finish(mut self, c: &[f64]) -> Vec<f64> {
+        let (p, width) = (self.p, self.p + 1);
+        for j in 0..p {
+            let dst = &mut self.part[j * width..(j + 1) * width];
+            for k in j..p {
+                dst[k] += self.sum_wd[j] * c[k] + c[j] * self.sum_wd[k] + self.sum_w * c[j] * c[k];
+            }
+            dst[p] += self.sum_wy * c[j];
         }
-        dst[p] += sum_wy * c[j];
+        self.part
     }
-    (part, true)
+}
+
+/// The weighted normal equations [X'WX | X'Wy] (upper triangle, p × (p + 1)) of one reweighting pass.
+#[derive(Debug, Clone)]
+pub struct NormalEquations {
+    a: Vec<f64>,
+    p: usize,
+}
+
+impl NormalEquations {
+    /// Solve by Cholesky; when a pivot is not safely positive (see [`normal_solve`]) fall back to
+    /// [`qr_solve`] on the same rows and weights, which succeeds more accurately or names the aliases.
+    pub fn solve<R: Rows + ?Sized>(mut self, x: &R, y: &[f64], w: &[f64]) -> Result<Vec<f64>, LinalgError> {
+        match cholesky_solve(&mut self.a, self.p) {
+            Some(coef) if coef.iter().all(|c| c.is_finite()) => Ok(coef),
+            _ => qr_solve_rows(x, y, Some(w)).map(|ls| ls.coef),
+        }
+    }
+}
+
+/// One IRLS pass in a single sweep over the rows: the residuals r = y − Xb into `r`, the weights
+/// w_i = weight(r_i) into `w`, and the normal equations at those weights, each row's deviation read
+/// once. Blocks as in [`normal_solve`]; the same answer for any thread count. A non-finite residual,
+/// a negative or non-finite weight, or non-finite rows give [`LinalgError::NonFinite`].
+pub fn reweight<R: Rows + ?Sized>(
+    x: &R,
+    y: &[f64],
+    coef: &[f64],
+    weight: &(dyn Fn(f64) -> f64 + Sync),
+    r: &mut [f64],
+    w: &mut [f64],
+) -> Result<NormalEquations, LinalgError> {
+    let (n, p) = (x.n(), x.p());
+    assert!(y.len() == n && r.len() == n && w.len() == n && coef.len() == p, "linalg::reweight: shapes");
+    let parts = map_blocks_mut2(r, w, |lo, r, w| {
+        let hi = lo + r.len();
+        if !x.finite(lo, hi) {
+            return None;
+        }
+        let c = x.baseline(lo, hi);
+        let cb = dot(&c, coef);
+        let mut acc = NormalAcc::new(p);
+        let mut idx = vec![0usize; p];
+        let mut val = vec![0.0; p];
+        for (k, (rk, wk)) in r.iter_mut().zip(w.iter_mut()).enumerate() {
+            let i = lo + k;
+            let m = x.deviation(i, &c, &mut idx, &mut val);
+            let mut fit = cb;
+            for (&j, &v) in idx[..m].iter().zip(&val[..m]) {
+                fit += v * coef[j];
+            }
+            let ri = y[i] - fit;
+            let wi = weight(ri);
+            if !ri.is_finite() || !wi.is_finite() || wi < 0.0 {
+                return None;
+            }
+            *rk = ri;
+            *wk = wi;
+            if wi != 0.0 {
+                acc.add(wi, y[i], &idx[..m], &val[..m]);
+            }
+        }
+        Some(acc.finish(&c))
+    });
+    let mut total = vec![0.0; p * (p + 1)];
+    for part in parts {
+        let part = part.ok_or(LinalgError::NonFinite)?;
+        for (t, v) in total.iter_mut().zip(part.iter()) {
+            *t += *v;
+        }
+    }
+    let positive = w.iter().filter(|v| **v > 0.0).count();
+    if positive < p {
+        return Err(LinalgError::TooFewRows { rows: positive, columns: p });
+    }
+    Ok(NormalEquations { a: total, p })
 }
 
 /// Per column, the most frequent value among the first rows of the block (ties: the earliest), or 0

@@ -11,7 +11,7 @@
 use super::loss::Loss;
 use super::scale::mad_about_zero;
 use super::{check_data, exact_fit_threshold, RobustError};
-use crate::linalg::{normal_solve_rows, qr_solve_rows, residuals_rows, Dense, Rows};
+use crate::linalg::{normal_solve_rows, qr_solve_rows, residuals_rows, reweight, Dense, Rows};
 use crate::termination::Termination;
 
 /// Settings of an IRLS fit.
@@ -108,33 +108,38 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
     let _timer = super::profile::stage(|| format!("irls m_fixed_scale n={n} p={p}"));
     let mut w = vec![0.0; n];
     let mut r_new = vec![0.0; n];
+    let mut w_new = vec![0.0; n];
+    let weight = |ri: f64| loss.weight(ri / scale);
+    // Each pass computes the residuals of the current coefficients, their weights and the weighted
+    // normal equations together (one sweep over the rows); the solve gives the next coefficients.
+    let mut eq = reweight(x, y, start, &weight, &mut r, &mut w)?;
     let mut termination = Termination::IterationLimit { iterations: opts.max_iter };
     let mut last = start.to_vec();
     for it in 1..=opts.max_iter {
-        weights_into(loss, &r, scale, &mut w);
-        let next = normal_solve_rows(x, y, &w)?;
-        residuals_rows(x, y, &next, &mut r_new);
+        let next = eq.solve(x, y, &w)?;
+        eq = reweight(x, y, &next, &weight, &mut r_new, &mut w_new)?;
         let moved = max_change(&r, &r_new);
         std::mem::swap(&mut r, &mut r_new);
+        std::mem::swap(&mut w, &mut w_new);
         last = next;
         if moved <= opts.tol * scale {
             termination = Termination::Converged { iterations: it };
             break;
         }
     }
+    drop((r_new, w_new));
     if super::profile::enabled() {
         eprintln!("knotwise-profile: irls {termination:?}");
     }
     // The reported solve: once more by QR with the weights of the final residuals.
     let coef = if opts.final_qr {
-        weights_into(loss, &r, scale, &mut w);
         let coef = qr_solve_rows(x, y, Some(&w))?.coef;
         residuals_rows(x, y, &coef, &mut r);
+        weights_into(loss, &r, scale, &mut w);
         coef
     } else {
         last
     };
-    weights_into(loss, &r, scale, &mut w);
     Ok(MEstimate { coef, residuals: r, weights: w, scale, termination })
 }
 
