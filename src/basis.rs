@@ -86,6 +86,23 @@ impl Basis {
         }
         let mut sorted = x.to_vec();
         sorted.sort_by(f64::total_cmp);
+        Basis::for_sorted(&sorted, degree, size, placement)
+    }
+
+    /// [`Basis::for_sample`] from the sample already sorted ascending (by `f64::total_cmp`), so that
+    /// many bases on the same sample share one sort.
+    pub fn for_sorted(
+        sorted: &[f64],
+        degree: usize,
+        size: usize,
+        placement: KnotPlacement,
+    ) -> Result<Basis, BasisError> {
+        if size < degree + 1 {
+            return Err(BasisError::SizeBelowOrder { size, degree });
+        }
+        if sorted.is_empty() || sorted.iter().any(|v| !v.is_finite()) {
+            return Err(BasisError::DegenerateRange);
+        }
         let (lo, hi) = (sorted[0], sorted[sorted.len() - 1]);
         // `hi - lo` must itself be finite for uniform knots (e.g. x spanning ±1e308).
         if lo >= hi || !(hi - lo).is_finite() {
@@ -100,7 +117,7 @@ impl Basis {
         let denom = (n_interior + 1) as f64;
         let interior: Vec<f64> = (1..=n_interior)
             .map(|l| match placement {
-                KnotPlacement::Quantile => quantile_sorted(&sorted, l as f64 / denom),
+                KnotPlacement::Quantile => quantile_sorted(sorted, l as f64 / denom),
                 KnotPlacement::Uniform => lo + (hi - lo) * (l as f64 / denom),
             })
             .collect();

@@ -70,20 +70,26 @@ impl SmoothEncoding {
         placement: KnotPlacement,
     ) -> Result<Self, BasisError> {
         let basis = Basis::for_sample(x, degree, size, placement)?;
+        let (first, values) = basis_rows(&basis, x, None);
+        Ok(SmoothEncoding::from_rows(column, basis, &first, &values))
+    }
+
+    /// The encoding of `basis` with centring means taken from its rows on the whole sample (as
+    /// [`basis_rows`] gives them): the mean of each basis function, summed in row order.
+    fn from_rows(column: &str, basis: Basis, first: &[u32], values: &[f64]) -> Self {
         let k = basis.size();
+        let width = basis.degree + 1;
         let mut sums = vec![0.0; k];
-        let mut nz = vec![0.0; degree + 1];
-        for &xi in x {
-            let first = basis.eval_nonzero(xi, &mut nz);
-            for (j, v) in nz.iter().enumerate() {
-                if let Some(s) = sums.get_mut(first + j) {
+        for (&f, row) in first.iter().zip(values.chunks_exact(width)) {
+            for (j, v) in row.iter().enumerate() {
+                if let Some(s) = sums.get_mut(f as usize + j) {
                     *s += v;
                 }
             }
         }
-        let n = x.len().max(1) as f64;
+        let n = first.len().max(1) as f64;
         let means = sums.into_iter().map(|s| s / n).collect();
-        Ok(SmoothEncoding { column: column.to_string(), basis, means })
+        SmoothEncoding { column: column.to_string(), basis, means }
     }
 
     /// Number of design columns (k − 1: the last basis function is dropped).
@@ -104,6 +110,51 @@ impl SmoothEncoding {
                 out[c] += v;
             }
         }
+    }
+}
+
+/// Each row's first non-zero basis index and its degree + 1 values at `x[i]`, for the rows `rows`
+/// (all of `x` when None). Rows are evaluated in parallel; each value is computed the same way on any
+/// thread.
+fn basis_rows(basis: &Basis, x: &[f64], rows: Option<&[usize]>) -> (Vec<u32>, Vec<f64>) {
+    let width = basis.degree + 1;
+    let n = rows.map_or(x.len(), |r| r.len());
+    let parts = linalg::map_blocks(n, |lo, hi| {
+        let mut first = Vec::with_capacity(hi - lo);
+        let mut values = vec![0.0; (hi - lo) * width];
+        for (k, out) in values.chunks_exact_mut(width).enumerate() {
+            let i = rows.map_or(lo + k, |r| r[lo + k]);
+            first.push(basis.eval_nonzero(x[i], out) as u32);
+        }
+        (first, values)
+    });
+    let mut first = Vec::with_capacity(n);
+    let mut values = Vec::with_capacity(n * width);
+    for (f, v) in parts {
+        first.extend_from_slice(&f);
+        values.extend_from_slice(&v);
+    }
+    (first, values)
+}
+
+/// The smooth columns of a frame, each sorted once, so that the designs of a whole grid share the
+/// sorts their quantile knots need.
+#[derive(Debug, Clone)]
+pub struct SortedColumns(Vec<Vec<f64>>);
+
+impl SortedColumns {
+    pub fn new(frame: &Frame, terms: &ModelTerms) -> Result<Self, DesignError> {
+        terms
+            .smooth
+            .iter()
+            .map(|s| {
+                let x = frame.numeric(&s.column).ok_or_else(|| DesignError::MissingColumn(s.column.clone()))?;
+                let mut sorted = x.to_vec();
+                sorted.sort_by(f64::total_cmp);
+                Ok(sorted)
+            })
+            .collect::<Result<Vec<_>, _>>()
+            .map(SortedColumns)
     }
 }
 
@@ -152,17 +203,30 @@ pub struct Design {
 impl Design {
     /// Build the design on all rows of `frame` with `sizes[j]` basis functions for smooth term j.
     pub fn build(frame: &Frame, terms: &ModelTerms, sizes: &[usize]) -> Result<Design, DesignError> {
+        Design::build_sorted(frame, terms, sizes, &SortedColumns::new(frame, terms)?)
+    }
+
+    /// [`Design::build`] with the smooth columns already sorted (`SortedColumns::new` of the same frame).
+    pub fn build_sorted(
+        frame: &Frame,
+        terms: &ModelTerms,
+        sizes: &[usize],
+        sorted: &SortedColumns,
+    ) -> Result<Design, DesignError> {
         let mut encodings = Vec::with_capacity(terms.smooth.len());
-        for (s, &k) in terms.smooth.iter().zip(sizes) {
+        let mut rows = Vec::with_capacity(terms.smooth.len());
+        for ((s, &k), sorted) in terms.smooth.iter().zip(sizes).zip(&sorted.0) {
             let x = frame.numeric(&s.column).ok_or_else(|| DesignError::MissingColumn(s.column.clone()))?;
-            let enc = SmoothEncoding::new(&s.column, x, s.degree, k, s.knots).map_err(|error| DesignError::Basis {
+            let basis = Basis::for_sorted(sorted, s.degree, k, s.knots).map_err(|error| DesignError::Basis {
                 column: s.column.clone(),
                 size: k,
                 error,
             })?;
-            encodings.push(enc);
+            let (first, values) = basis_rows(&basis, x, None);
+            encodings.push(SmoothEncoding::from_rows(&s.column, basis, &first, &values));
+            rows.push((first, values));
         }
-        Design::with_encodings(frame, terms, encodings, None)
+        Design::assemble(frame, terms, encodings, None, Some(rows))
     }
 
     /// Build the design from given smooth encodings (knots and centring fixed), optionally on a subset
@@ -173,6 +237,19 @@ impl Design {
         encodings: Vec<SmoothEncoding>,
         rows: Option<&[usize]>,
     ) -> Result<Design, DesignError> {
+        Design::assemble(frame, terms, encodings, rows, None)
+    }
+
+    /// The design on `rows` (all when None); `smooth_rows` are the basis rows of each smooth term on
+    /// exactly those rows when the caller has them already.
+    fn assemble(
+        frame: &Frame,
+        terms: &ModelTerms,
+        encodings: Vec<SmoothEncoding>,
+        rows: Option<&[usize]>,
+        smooth_rows: Option<Vec<(Vec<u32>, Vec<f64>)>>,
+    ) -> Result<Design, DesignError> {
+        let whole = rows.is_none();
         let all: Vec<usize>;
         let rows = match rows {
             Some(r) => r,
@@ -214,7 +291,8 @@ impl Design {
                 }
             }
         }
-        for enc in &encodings {
+        let mut smooth_rows = smooth_rows;
+        for (t, enc) in encodings.iter().enumerate() {
             let start = names.len();
             let m = enc.columns();
             for j in 1..=m {
@@ -224,11 +302,10 @@ impl Design {
             spans.push(TermSpan { column: enc.column.clone(), kind: TermKind::Smooth, start, len: m });
             let xs = frame.numeric(&enc.column).ok_or_else(|| DesignError::MissingColumn(enc.column.clone()))?;
             let width = enc.basis.degree + 1;
-            let mut first = Vec::with_capacity(n);
-            let mut values = vec![0.0; n * width];
-            for (out, &i) in values.chunks_exact_mut(width).zip(rows) {
-                first.push(enc.basis.eval_nonzero(xs[i], out) as u32);
-            }
+            let (first, values) = match smooth_rows.as_mut().and_then(|r| r.get_mut(t)) {
+                Some(r) => std::mem::take(r),
+                None => basis_rows(&enc.basis, xs, if whole { None } else { Some(rows) }),
+            };
             store.push(Store::Smooth { start, m, width, first, values });
         }
         let p = names.len();

@@ -1,4 +1,4 @@
-//! Fits on a [`Design`]: classical least squares (QR) and robust M/MM fits, each with covariance,
+//! Fits on a [`Design`]: classical least squares and robust M/MM fits, each with covariance,
 //! intervals and how it stopped; curves with pointwise bands for the smooth terms.
 //!
 //! Fitting is a pure function `(design, method, options) -> Fit`; nothing here reads or writes files.
@@ -117,7 +117,7 @@ pub struct Fit {
     pub interval: IntervalKind,
     /// Quantile used for the 95% intervals and bands.
     pub critical: f64,
-    /// (X'X)⁻¹ of the unweighted design (from its QR factor), p × p; shared with fits on the same design.
+    /// (X'X)⁻¹ of the unweighted design (from its triangular factor), p × p; shared with fits on the same design.
     pub xtx_inverse: Vec<f64>,
 }
 
@@ -176,13 +176,13 @@ fn assemble(design: &Design, s: Solved) -> Fit {
     }
 }
 
-/// Classical least squares by Householder QR; σ̂² = RSS/(n − p); t-based 95% intervals (DESIGN.md §4.2).
+/// Classical least squares by [`linalg::least_squares_rows`] (refined normal equations or QR); σ̂² = RSS/(n − p); t-based 95% intervals (DESIGN.md §4.2).
 pub fn classical(design: &Design) -> Result<Fit, FitError> {
     let (n, p) = (design.n, design.p);
     if n <= p {
         return Err(FitError::TooFewRows { rows: n, columns: p });
     }
-    let ls = linalg::qr_solve_rows(design, &design.y, None)?;
+    let ls = linalg::least_squares_rows(design, &design.y, None)?;
     let df = (n - p) as f64;
     let sigma2 = ls.rss / df;
     let inv = ls.xtx_inverse();
@@ -220,7 +220,7 @@ pub fn robust(
     robust_with_xtx(design, method, start, scale, options, None)
 }
 
-/// [`robust`] reusing (X'X)⁻¹ of the same design (e.g. from its classical fit), saving a QR.
+/// [`robust`] reusing (X'X)⁻¹ of the same design (e.g. from its classical fit), saving a least-squares solve.
 pub fn robust_with_xtx(
     design: &Design,
     method: RobustMethod,
@@ -244,7 +244,7 @@ pub fn robust_with_xtx(
     };
     let inv = match xtx_inverse {
         Some(inv) if inv.len() == p * p => inv.to_vec(),
-        _ => linalg::qr_solve_rows(design, &design.y, None)?.xtx_inverse(),
+        _ => linalg::least_squares_rows(design, &design.y, None)?.xtx_inverse(),
     };
     let cov = if est.scale > 0.0 {
         sandwich::huber_sandwich(n, p, &est.residuals, est.scale, loss.as_ref(), &inv)?

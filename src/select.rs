@@ -9,7 +9,7 @@
 //! Ronchetti & Staudte 1994).
 
 use crate::data::Frame;
-use crate::design::{Design, DesignError, ModelTerms};
+use crate::design::{Design, DesignError, ModelTerms, SortedColumns};
 use crate::fit::{self, Fit, FitError, RobustMethod};
 use crate::robust::irls::IrlsOptions;
 use crate::robust::sest::{SEstimate, SOptions};
@@ -179,6 +179,7 @@ struct Evaluator<'a> {
     terms: &'a ModelTerms,
     spec: &'a GridSpec,
     plan: &'a RobustPlan,
+    sorted: &'a SortedColumns,
     shared_scale: Option<f64>,
     /// Robust fitted values of the richest model, projected onto each design as a warm start.
     anchor: Option<Vec<f64>>,
@@ -194,7 +195,8 @@ impl Evaluator<'_> {
     fn evaluate(&self, sizes: &[usize]) -> Result<Evaluated, SelectError> {
         let mut point =
             GridPoint { sizes: sizes.to_vec(), p: 0, bic: None, rbic: None, robust_termination: None, skipped: None };
-        let design = match Design::build(self.frame, self.terms, sizes) {
+        let t = crate::robust::profile::stage(|| format!("select: design {sizes:?}"));
+        let design = match Design::build_sorted(self.frame, self.terms, sizes, self.sorted) {
             Ok(d) => d,
             Err(e @ DesignError::Basis { .. }) => {
                 point.skipped = Some(describe_design_error(&e));
@@ -203,6 +205,8 @@ impl Evaluator<'_> {
             Err(e) => return Err(SelectError::Design(e)),
         };
         point.p = design.p;
+        drop(t);
+        let t = crate::robust::profile::stage(|| format!("select: classical fit {sizes:?}"));
         let classical = match fit::classical(&design) {
             Ok(f) => f,
             // Aliasing inside a smooth block (too few rows between knots) makes this size impossible;
@@ -222,6 +226,7 @@ impl Evaluator<'_> {
             }
             Err(e) => return Err(SelectError::Fit(e, sizes.to_vec())),
         };
+        drop(t);
         point.bic = Some(bic(classical.rss, design.n, design.p, self.spec.penalty));
         let (start, scale, s_est) = match (self.plan.method.needs_s_estimate(), self.plan.scale_mode, self.shared_scale)
         {
@@ -238,7 +243,7 @@ impl Evaluator<'_> {
                 (Some(s.coef.clone()), s.scale, Some(s))
             }
         };
-        // Grid points are only scored here; the chosen one is polished by QR after the search.
+        // Grid points are only scored here; the chosen one is re-solved accurately after the search.
         let scoring = IrlsOptions { final_qr: false, ..self.plan.irls.clone() };
         let robust = fit::robust_with_xtx(
             &design,
@@ -339,7 +344,9 @@ pub fn select_with_progress(
     report(0);
     let lists: Vec<Vec<usize>> =
         spec.per_term.iter().map(|g| g.clone().unwrap_or_else(|| spec.shared.clone())).collect();
-    let mut ev = Evaluator { frame, terms, spec, plan, shared_scale: None, anchor: None };
+    // One sort per smooth column serves every design of the grid.
+    let sorted = SortedColumns::new(frame, terms).map_err(SelectError::Design)?;
+    let mut ev = Evaluator { frame, terms, spec, plan, sorted: &sorted, shared_scale: None, anchor: None };
 
     // The shared scale: S-estimate of the richest model that can be built (largest sizes first).
     let mut scale_source = Vec::new();
@@ -354,7 +361,7 @@ pub fn select_with_progress(
         };
         order.sort_by_key(|s| std::cmp::Reverse(s.iter().sum::<usize>()));
         for sizes in &order {
-            let Ok(design) = Design::build(frame, terms, sizes) else { continue };
+            let Ok(design) = Design::build_sorted(frame, terms, sizes, &sorted) else { continue };
             let Ok(classical) = fit::classical(&design) else { continue };
             let s = fit::s_estimate(&design, &plan.s_options).map_err(|e| SelectError::Fit(e, sizes.clone()))?;
             let xtx = Some(classical.xtx_inverse.as_slice());

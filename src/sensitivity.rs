@@ -61,7 +61,7 @@ pub struct Leverage {
 }
 
 pub fn leverage(design: &Design) -> Result<Leverage, FitError> {
-    let ls = linalg::qr_solve_rows(design, &design.y, None)?;
+    let ls = linalg::least_squares_rows(design, &design.y, None)?;
     let hat = linalg::hat_values_rows(design, &ls.r);
     let threshold = 2.0 * design.p as f64 / design.n as f64;
     let high = hat.iter().enumerate().filter(|(_, h)| **h > threshold).map(|(i, _)| i).collect();
@@ -249,6 +249,7 @@ pub fn analyse(
             robust_without = Some(f);
         }
         let sub_frame = frame_subset(frame, &keep);
+        let sorted = crate::design::SortedColumns::new(&sub_frame, terms);
         for gp in grid_points {
             let mut point = GridPoint {
                 sizes: gp.sizes.clone(),
@@ -258,7 +259,11 @@ pub fn analyse(
                 robust_termination: None,
                 skipped: None,
             };
-            match crate::design::Design::build(&sub_frame, terms, &gp.sizes) {
+            let built = sorted
+                .as_ref()
+                .map_err(|e| e.clone())
+                .and_then(|sorted| crate::design::Design::build_sorted(&sub_frame, terms, &gp.sizes, sorted));
+            match built {
                 Ok(d) => {
                     point.p = d.p;
                     match fit::classical(&d) {
@@ -335,11 +340,11 @@ pub fn analyse(
         }
         ranked.sort_unstable();
         // The classical fit carries (X'X)⁻¹; the hat values are the leverage computed above when the
-        // classical and robust designs coincide (same sizes, same rows), else one more QR.
+        // classical and robust designs coincide (same sizes, same rows), else one more least-squares solve.
         let hat = if cd.sizes == rd.sizes && cd.n == rd.n {
             leverage.hat.clone()
         } else {
-            let ls = linalg::qr_solve_rows(cd, &cd.y, None)?;
+            let ls = linalg::least_squares_rows(cd, &cd.y, None)?;
             linalg::hat_values_rows(cd, &ls.r)
         };
         influence_rows = influence(cd, cf, &cf.xtx_inverse, &hat, &ranked);

@@ -2,7 +2,8 @@
 //! location-scale fixed point.
 //!
 //! Owns the IRLS loops only: inner steps by weighted normal equations (`linalg::normal_solve`), the
-//! reported solve once more by Householder QR with the final weights. Pure functions: design, loss,
+//! reported solve once more by the accurate least-squares solve (`linalg::least_squares_rows`) with the
+//! final weights. Pure functions: design, loss,
 //! scale and options in, an [`MEstimate`] out.
 
 // `!(a > b)` is used on purpose: it is true when a is NaN, so an unusable value takes the safe branch.
@@ -11,7 +12,7 @@
 use super::loss::Loss;
 use super::scale::mad_about_zero;
 use super::{check_data, exact_fit_threshold, RobustError};
-use crate::linalg::{normal_solve_rows, qr_solve_rows, residuals_rows, reweight, Dense, Rows};
+use crate::linalg::{least_squares_rows, normal_solve_rows, residuals_rows, reweight, Dense, Rows};
 use crate::termination::Termination;
 
 /// Settings of an IRLS fit.
@@ -24,7 +25,7 @@ pub struct IrlsOptions {
     /// relative). Measuring the change of the fit in units of the scale makes the test invariant to
     /// the units of y and of each column, unlike a test on raw coefficients.
     pub tol: f64,
-    /// Re-solve the converged weighted problem once by QR (true). The selection grid turns this off
+    /// Re-solve the converged weighted problem once by the accurate least-squares solve (true). The selection grid turns this off
     /// for the points it only scores and polishes the chosen point alone.
     pub final_qr: bool,
 }
@@ -131,9 +132,9 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
     if super::profile::enabled() {
         eprintln!("knotwise-profile: irls {termination:?}");
     }
-    // The reported solve: once more by QR with the weights of the final residuals.
+    // The reported solve: once more, accurately, with the weights of the final residuals.
     let coef = if opts.final_qr {
-        let coef = qr_solve_rows(x, y, Some(&w))?.coef;
+        let coef = least_squares_rows(x, y, Some(&w))?.coef;
         residuals_rows(x, y, &coef, &mut r);
         weights_into(loss, &r, scale, &mut w);
         coef
@@ -175,7 +176,7 @@ pub fn huber_joint_rows<R: Rows + ?Sized>(
     }
     let loss = super::loss::Huber { k };
     let tiny = exact_fit_threshold(y);
-    let mut coef = qr_solve_rows(x, y, None)?.coef;
+    let mut coef = least_squares_rows(x, y, None)?.coef;
     let mut r = vec![0.0; n];
     residuals_rows(x, y, &coef, &mut r);
     let mut s = mad_about_zero(&r);
@@ -209,10 +210,10 @@ pub fn huber_joint_rows<R: Rows + ?Sized>(
             break;
         }
     }
-    // Reported solve by QR with the weights of the final residuals and scale; the scale is then the MAD
+    // Reported solve (accurate least squares) with the weights of the final residuals and scale; the scale is then the MAD
     // of the reported residuals, as in the iteration.
     weights_into(&loss, &r, s, &mut w);
-    coef = qr_solve_rows(x, y, Some(&w))?.coef;
+    coef = least_squares_rows(x, y, Some(&w))?.coef;
     residuals_rows(x, y, &coef, &mut r);
     let s_final = mad_about_zero(&r);
     if !(s_final > tiny) {
