@@ -176,11 +176,7 @@ pub trait Rows: Sync {
         let mut val = vec![0.0; p];
         for (k, o) in out.iter_mut().enumerate() {
             let m = self.deviation(lo + k, &c, &mut idx, &mut val);
-            let mut s = cb;
-            for (&j, &v) in idx[..m].iter().zip(&val[..m]) {
-                s += v * coef[j];
-            }
-            *o = s;
+            *o = sparse_dot(cb, &idx[..m], &val[..m], coef);
         }
     }
 }
@@ -602,6 +598,16 @@ fn weighted_rss<R: Rows + ?Sized>(x: &R, y: &[f64], w: Option<&[f64]>, coef: &[f
     })
 }
 
+/// c'b + Σ_k val_k·b_{idx_k}: a row's x'b from its baseline product `cb` and its deviation entries.
+#[inline]
+fn sparse_dot(cb: f64, idx: &[usize], val: &[f64], coef: &[f64]) -> f64 {
+    let mut s = cb;
+    for (&j, &v) in idx.iter().zip(val) {
+        s += v * coef[j];
+    }
+    s
+}
+
 /// x'b summed in index order.
 #[inline]
 fn dot(row: &[f64], coef: &[f64]) -> f64 {
@@ -625,23 +631,33 @@ pub fn normal_solve(x: &[f64], n: usize, p: usize, y: &[f64], w: &[f64]) -> Resu
 
 /// [`normal_solve`] on any [`Rows`].
 pub fn normal_solve_rows<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64]) -> Result<Vec<f64>, LinalgError> {
-    let (n, p) = (x.n(), x.p());
     check_inputs(x, y, Some(w))?;
-    let width = p + 1;
-    let parts = map_blocks(n, |lo, hi| xtwx_block(x, y, w, lo, hi));
-    if parts.iter().any(|(_, finite)| !finite) {
-        return Err(LinalgError::NonFinite);
-    }
-    let mut total = vec![0.0; p * width];
-    for (part, _) in &parts {
-        for (t, v) in total.iter_mut().zip(part.iter()) {
-            *t += *v;
-        }
-    }
-    match cholesky_solve(&mut total, p) {
+    let mut total = normal_equations(x, y, w)?;
+    match cholesky_solve(&mut total, x.p()) {
         Some(coef) if coef.iter().all(|c| c.is_finite()) => Ok(coef),
         _ => qr_solve_rows(x, y, Some(w)).map(|ls| ls.coef),
     }
+}
+
+/// The upper triangle of [X'WX | X'Wy] (p × (p + 1)): [`xtwx_block`] over the fixed blocks, added
+/// in block order; non-finite rows are [`LinalgError::NonFinite`].
+fn normal_equations<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64]) -> Result<Vec<f64>, LinalgError> {
+    let parts = map_blocks(x.n(), |lo, hi| xtwx_block(x, y, w, lo, hi));
+    if parts.iter().any(|(_, finite)| !finite) {
+        return Err(LinalgError::NonFinite);
+    }
+    Ok(add_parts(x.p() * (x.p() + 1), parts.into_iter().map(|(part, _)| part)))
+}
+
+/// Element-wise sum of block results, added in block order.
+fn add_parts(len: usize, parts: impl IntoIterator<Item = Vec<f64>>) -> Vec<f64> {
+    let mut total = vec![0.0; len];
+    for part in parts {
+        for (t, v) in total.iter_mut().zip(&part) {
+            *t += v;
+        }
+    }
+    total
 }
 
 /// Upper triangle of [X'WX | X'Wy] over rows lo..hi (row-major, width p + 1) and whether those rows
@@ -767,10 +783,7 @@ pub fn reweight<R: Rows + ?Sized>(
         for (k, (rk, wk)) in r.iter_mut().zip(w.iter_mut()).enumerate() {
             let i = lo + k;
             let m = x.deviation(i, &c, &mut idx, &mut val);
-            let mut fit = cb;
-            for (&j, &v) in idx[..m].iter().zip(&val[..m]) {
-                fit += v * coef[j];
-            }
+            let fit = sparse_dot(cb, &idx[..m], &val[..m], coef);
             let ri = y[i] - fit;
             let wi = weight(ri);
             if !ri.is_finite() || !wi.is_finite() || wi < 0.0 {
@@ -784,13 +797,8 @@ pub fn reweight<R: Rows + ?Sized>(
         }
         Some(acc.finish(&c))
     });
-    let mut total = vec![0.0; p * (p + 1)];
-    for part in parts {
-        let part = part.ok_or(LinalgError::NonFinite)?;
-        for (t, v) in total.iter_mut().zip(part.iter()) {
-            *t += *v;
-        }
-    }
+    let parts: Vec<Vec<f64>> = parts.into_iter().collect::<Option<_>>().ok_or(LinalgError::NonFinite)?;
+    let total = add_parts(p * (p + 1), parts);
     let positive = w.iter().filter(|v| **v > 0.0).count();
     if positive < p {
         return Err(LinalgError::TooFewRows { rows: positive, columns: p });
@@ -912,25 +920,15 @@ pub fn least_squares_rows<R: Rows + ?Sized>(x: &R, y: &[f64], w: Option<&[f64]>)
             &ones
         }
     };
-    let parts = map_blocks(n, |lo, hi| xtwx_block(x, y, wv, lo, hi));
-    if parts.iter().any(|(_, finite)| !finite) {
-        return Err(LinalgError::NonFinite);
-    }
-    let mut a = vec![0.0; p * width];
-    for (part, _) in &parts {
-        for (t, v) in a.iter_mut().zip(part.iter()) {
-            *t += *v;
-        }
-    }
-    drop(parts);
+    let mut a = normal_equations(x, y, wv)?;
     let norms: Vec<f64> = (0..p).map(|j| a[j * width + j].max(0.0).sqrt()).collect();
     if !cholesky_factor(&mut a, p) {
         return qr_solve_rows(x, y, w);
     }
-    let u: Vec<f64> = (0..p)
-        .flat_map(|i| (0..p).map(move |j| (i, j)))
-        .map(|(i, j)| if j >= i { a[i * width + j] } else { 0.0 })
-        .collect();
+    let mut u = vec![0.0; p * p];
+    for i in 0..p {
+        u[i * p + i..(i + 1) * p].copy_from_slice(&a[i * width + i..i * width + p]);
+    }
     let uinv = upper_inverse(&u, p);
     let mut fu = 0.0;
     let mut fi = 0.0;
@@ -980,10 +978,7 @@ fn xtw_residual<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64], coef: &[f64]) -> 
                 continue;
             }
             let m = x.deviation(i, &c, &mut idx, &mut val);
-            let mut fit = cb;
-            for (&j, &v) in idx[..m].iter().zip(&val[..m]) {
-                fit += v * coef[j];
-            }
+            let fit = sparse_dot(cb, &idx[..m], &val[..m], coef);
             let wr = w[i] * (y[i] - fit);
             sum += wr;
             for (&j, &v) in idx[..m].iter().zip(&val[..m]) {
@@ -995,12 +990,7 @@ fn xtw_residual<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64], coef: &[f64]) -> 
         }
         acc
     });
-    parts.into_iter().fold(vec![0.0; p], |mut t, part| {
-        for (a, b) in t.iter_mut().zip(part) {
-            *a += b;
-        }
-        t
-    })
+    add_parts(p, parts)
 }
 
 /// Residuals y − Xb into `out` (rows in parallel; each value is computed the same way on any thread).

@@ -2,7 +2,8 @@
 //! 1965, committed in tests/reference/robust/stackloss.json) and against its own invariants.
 
 use knotwise::linalg::{
-    hat_values, least_squares_rows, normal_solve, qr_solve, qr_solve_chunked, Dense, LinalgError, LsMethod,
+    hat_values, least_squares_rows, normal_solve, qr_solve, qr_solve_chunked, Dense, LeastSquares, LinalgError,
+    LsMethod,
 };
 use rand_chacha::ChaCha8Rng;
 use rand_core::{RngCore, SeedableRng};
@@ -45,25 +46,30 @@ fn random_design(n: usize, p: usize, seed: u64) -> (Vec<f64>, Vec<f64>, Vec<f64>
     (x, y, w)
 }
 
-#[test]
-fn stackloss_ols_matches_statsmodels() {
-    let (x, y, v) = stackloss();
-    let ls = qr_solve(&x, 21, 4, &y, None).unwrap();
-    let want = floats(&v["ols"]["coef"]);
-    for (a, b) in ls.coef.iter().zip(want.iter()) {
+/// Coefficients, RSS and classical standard errors σ²(X'X)⁻¹ (σ² = RSS/(n − p)) of a stack-loss
+/// solve against the committed statsmodels OLS values.
+fn assert_matches_statsmodels_ols(ls: &LeastSquares, v: &serde_json::Value) {
+    for (a, b) in ls.coef.iter().zip(floats(&v["ols"]["coef"]).iter()) {
         assert!((a - b).abs() < 1e-10 * b.abs().max(1.0), "{a} vs {b}");
-    }
-    // Brownlee (1965) OLS as usually quoted: -39.9197, 0.7156, 1.2953, -0.1521.
-    for (a, b) in ls.coef.iter().zip([-39.9197, 0.7156, 1.2953, -0.1521].iter()) {
-        assert!((a - b).abs() < 5e-5);
     }
     let rss = v["ols"]["rss"].as_f64().unwrap();
     assert!((ls.rss - rss).abs() < 1e-10 * rss);
-    // Classical standard errors σ²(X'X)⁻¹, σ² = RSS/(n − p).
     let inv = ls.xtx_inverse();
     let s2 = ls.rss / 17.0;
     for (j, b) in floats(&v["ols"]["bse"]).iter().enumerate() {
         assert!(((s2 * inv[j * 4 + j]).sqrt() - b).abs() < 1e-9 * b);
+    }
+}
+
+#[test]
+fn stackloss_ols_matches_statsmodels() {
+    let (x, y, v) = stackloss();
+    let ls = qr_solve(&x, 21, 4, &y, None).unwrap();
+    assert_matches_statsmodels_ols(&ls, &v);
+    let want = floats(&v["ols"]["coef"]);
+    // Brownlee (1965) OLS as usually quoted: -39.9197, 0.7156, 1.2953, -0.1521.
+    for (a, b) in ls.coef.iter().zip([-39.9197, 0.7156, 1.2953, -0.1521].iter()) {
+        assert!((a - b).abs() < 5e-5);
     }
     let nb = normal_solve(&x, 21, 4, &y, &[1.0; 21]).unwrap();
     for (a, b) in nb.iter().zip(want.iter()) {
@@ -164,16 +170,7 @@ fn refined_normal_equations_match_statsmodels_on_stackloss() {
     let (x, y, v) = stackloss();
     let ls = least_squares_rows(&Dense::new(&x, 21, 4), &y, None).unwrap();
     assert_eq!(ls.method, LsMethod::RefinedNormal);
-    for (a, b) in ls.coef.iter().zip(floats(&v["ols"]["coef"]).iter()) {
-        assert!((a - b).abs() < 1e-10 * b.abs().max(1.0), "{a} vs {b}");
-    }
-    let rss = v["ols"]["rss"].as_f64().unwrap();
-    assert!((ls.rss - rss).abs() < 1e-10 * rss);
-    let inv = ls.xtx_inverse();
-    let s2 = ls.rss / 17.0;
-    for (j, b) in floats(&v["ols"]["bse"]).iter().enumerate() {
-        assert!(((s2 * inv[j * 4 + j]).sqrt() - b).abs() < 1e-9 * b);
-    }
+    assert_matches_statsmodels_ols(&ls, &v);
     // R'R = X'X whichever factor was used: the hat values still sum to p.
     let h = hat_values(&x, 21, 4, &ls.r);
     assert!((h.iter().sum::<f64>() - 4.0).abs() < 1e-10);

@@ -96,8 +96,8 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
         return Err(RobustError::NonFinite);
     }
     let mut r = vec![0.0; n];
-    residuals_rows(x, y, start, &mut r);
     if scale <= exact_fit_threshold(y) {
+        residuals_rows(x, y, start, &mut r);
         return Ok(MEstimate {
             coef: start.to_vec(),
             residuals: r,
