@@ -72,9 +72,17 @@ def compute():
     }
 
 
+# Iteration counts of the fit run to tol=1e-14 are recorded for the reader but not checked: the stopping
+# test sits at rounding level, so the count moves with the BLAS kernel the CPU selects (seen: 35 on one
+# machine and 33 on another with the same pinned numpy/scipy/statsmodels and identical coefficients).
+UNCHECKED = {".huber_tight.iterations"}
+
+
 def compare(a, b, path=""):
     """List of mismatches between two JSON trees (numbers to 1e-9 relative)."""
     bad = []
+    if path in UNCHECKED:
+        return bad
     if isinstance(a, dict):
         for k in set(a) | set(b):
             if k == "versions":
