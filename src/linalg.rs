@@ -708,8 +708,14 @@ impl NormalAcc {
     /// Add row i with weight `wi`, response `yi` and deviation entries (ascending columns).
     #[inline]
     fn add(&mut self, wi: f64, yi: f64, idx: &[usize], val: &[f64]) {
+        self.add_general(wi, wi * yi, idx, val);
+    }
+
+    /// Add row i with matrix weight `wi` and right-hand-side multiplier `wy`: w d d' to the matrix and
+    /// wy·d to the right-hand side (for weighted least squares wy = w·y).
+    #[inline]
+    fn add_general(&mut self, wi: f64, wy: f64, idx: &[usize], val: &[f64]) {
         let (p, width) = (self.p, self.p + 1);
-        let wy = wi * yi;
         self.sum_w += wi;
         self.sum_wy += wy;
         for a in 0..idx.len() {
@@ -746,6 +752,11 @@ pub struct NormalEquations {
 }
 
 impl NormalEquations {
+    /// The Cholesky solution alone: None when the matrix is not safely positive definite.
+    pub fn cholesky(mut self) -> Option<Vec<f64>> {
+        cholesky_solve(&mut self.a, self.p).filter(|c| c.iter().all(|v| v.is_finite()))
+    }
+
     /// Solve by Cholesky; when a pivot is not safely positive (see [`normal_solve`]) fall back to
     /// [`qr_solve`] on the same rows and weights, which succeeds more accurately or names the aliases.
     pub fn solve<R: Rows + ?Sized>(mut self, x: &R, y: &[f64], w: &[f64]) -> Result<Vec<f64>, LinalgError> {
@@ -768,9 +779,54 @@ pub fn reweight<R: Rows + ?Sized>(
     r: &mut [f64],
     w: &mut [f64],
 ) -> Result<NormalEquations, LinalgError> {
+    let p = x.p();
+    let terms = |ri: f64, yi: f64| {
+        let wi = weight(ri);
+        (wi.is_finite() && wi >= 0.0).then_some((wi, wi * yi, 0.0))
+    };
+    let (eq, _) = sweep(x, y, coef, &terms, r, w)?;
+    let positive = w.iter().filter(|v| **v > 0.0).count();
+    if positive < p {
+        return Err(LinalgError::TooFewRows { rows: positive, columns: p });
+    }
+    Ok(eq)
+}
+
+/// One Newton pass for Σ ρ(r_i) in a single sweep: the residuals r = y − Xb into `r`; `terms(r_i)`
+/// gives (d_i, g_i, ρ_i), stored d_i into `d`; returns the system [Σ d_i x_i x_i' | Σ g_i x_i] and
+/// Σ ρ_i, each added in block order (the same answer for any thread count). With d = ψ'(r/s) and
+/// g = s·ψ(r/s), the solution of the system is the Newton step for the coefficients of the M-estimate
+/// with scale s. d may be negative or zero (a row with d = 0 still adds g x_i). A non-finite residual,
+/// term or row gives [`LinalgError::NonFinite`].
+pub fn newton_sweep<R: Rows + ?Sized>(
+    x: &R,
+    y: &[f64],
+    coef: &[f64],
+    terms: &(dyn Fn(f64) -> (f64, f64, f64) + Sync),
+    r: &mut [f64],
+    d: &mut [f64],
+) -> Result<(NormalEquations, f64), LinalgError> {
+    let terms = |ri: f64, _yi: f64| {
+        let (di, gi, rho) = terms(ri);
+        (di.is_finite() && gi.is_finite() && rho.is_finite()).then_some((di, gi, rho))
+    };
+    sweep(x, y, coef, &terms, r, d)
+}
+
+/// The shared sweep of [`reweight`] and [`newton_sweep`]: residuals into `r`; `terms(r_i, y_i)` gives
+/// the matrix weight d_i (stored into `d`), the right-hand-side multiplier g_i and an objective term,
+/// or None for an unusable value; returns [Σ d x x' | Σ g x] and the summed objective.
+fn sweep<R: Rows + ?Sized>(
+    x: &R,
+    y: &[f64],
+    coef: &[f64],
+    terms: &(dyn Fn(f64, f64) -> Option<(f64, f64, f64)> + Sync),
+    r: &mut [f64],
+    d: &mut [f64],
+) -> Result<(NormalEquations, f64), LinalgError> {
     let (n, p) = (x.n(), x.p());
-    assert!(y.len() == n && r.len() == n && w.len() == n && coef.len() == p, "linalg::reweight: shapes");
-    let parts = map_blocks_mut2(r, w, |lo, r, w| {
+    assert!(y.len() == n && r.len() == n && d.len() == n && coef.len() == p, "linalg::sweep: shapes");
+    let parts = map_blocks_mut2(r, d, |lo, r, d| {
         let hi = lo + r.len();
         if !x.finite(lo, hi) {
             return None;
@@ -780,30 +836,28 @@ pub fn reweight<R: Rows + ?Sized>(
         let mut acc = NormalAcc::new(p);
         let mut idx = vec![0usize; p];
         let mut val = vec![0.0; p];
-        for (k, (rk, wk)) in r.iter_mut().zip(w.iter_mut()).enumerate() {
+        let mut objective = 0.0;
+        for (k, (rk, dk)) in r.iter_mut().zip(d.iter_mut()).enumerate() {
             let i = lo + k;
             let m = x.deviation(i, &c, &mut idx, &mut val);
-            let fit = sparse_dot(cb, &idx[..m], &val[..m], coef);
-            let ri = y[i] - fit;
-            let wi = weight(ri);
-            if !ri.is_finite() || !wi.is_finite() || wi < 0.0 {
+            let ri = y[i] - sparse_dot(cb, &idx[..m], &val[..m], coef);
+            if !ri.is_finite() {
                 return None;
             }
+            let (di, gi, obj) = terms(ri, y[i])?;
             *rk = ri;
-            *wk = wi;
-            if wi != 0.0 {
-                acc.add(wi, y[i], &idx[..m], &val[..m]);
+            *dk = di;
+            objective += obj;
+            if di != 0.0 || gi != 0.0 {
+                acc.add_general(di, gi, &idx[..m], &val[..m]);
             }
         }
-        Some(acc.finish(&c))
+        Some((acc.finish(&c), objective))
     });
-    let parts: Vec<Vec<f64>> = parts.into_iter().collect::<Option<_>>().ok_or(LinalgError::NonFinite)?;
-    let total = add_parts(p * (p + 1), parts);
-    let positive = w.iter().filter(|v| **v > 0.0).count();
-    if positive < p {
-        return Err(LinalgError::TooFewRows { rows: positive, columns: p });
-    }
-    Ok(NormalEquations { a: total, p })
+    let parts: Vec<(Vec<f64>, f64)> = parts.into_iter().collect::<Option<_>>().ok_or(LinalgError::NonFinite)?;
+    let objective = parts.iter().fold(0.0, |a, (_, o)| a + o);
+    let total = add_parts(p * (p + 1), parts.into_iter().map(|(part, _)| part));
+    Ok((NormalEquations { a: total, p }, objective))
 }
 
 /// Per column, the most frequent value among the first rows of the block (ties: the earliest), or 0

@@ -115,6 +115,41 @@ fn estimating_equations_hold() {
     }
 }
 
+/// The fixed-scale iteration takes Newton steps only when they lower Σρ and falls back to IRLS
+/// otherwise: from a poor start it must
+/// still lower Σρ, end converged at a point where Σ ψ(r_i/s) x_i = 0, and be a fixed point (restarting
+/// there moves nothing). Stack-loss data as above; scale the S-scale; starts: least squares (pulled
+/// by the outlying rows), the S-estimate, and the S-estimate with every coefficient moved by 20%.
+#[test]
+fn fixed_scale_iteration_from_a_poor_start_is_a_descent_to_a_stationary_point() {
+    let (x, y) = stackloss();
+    let (s, _) = mm(&x, 21, 4, &y, 1);
+    let loss = Bisquare::efficient_95();
+    let objective = |coef: &[f64]| {
+        let mut r = vec![0.0; 21];
+        knotwise::linalg::residuals(&x, 21, 4, &y, coef, &mut r);
+        r.iter().map(|v| loss.rho(v / s.scale)).sum::<f64>()
+    };
+    let ols = qr_solve(&x, 21, 4, &y, None).unwrap().coef;
+    let moved: Vec<f64> = s.coef.iter().map(|b| 1.2 * b).collect();
+    for start in [ols, s.coef.clone(), moved] {
+        let m = m_fixed_scale(&x, 21, 4, &y, &start, s.scale, &loss, &IrlsOptions::default()).unwrap();
+        assert!(matches!(m.termination, Termination::Converged { .. }), "{:?}", m.termination);
+        assert!(objective(&m.coef) <= objective(&start) + 1e-12, "start {start:?}");
+        for j in 0..4 {
+            let (mut sum, mut abs) = (0.0, 0.0);
+            for i in 0..21 {
+                let t = loss.psi(m.residuals[i] / m.scale) * x[i * 4 + j];
+                sum += t;
+                abs += t.abs();
+            }
+            assert!(sum.abs() <= 1e-8 * abs.max(1e-300), "start {start:?}, column {j}: {sum} vs {abs}");
+        }
+        let again = m_fixed_scale(&x, 21, 4, &y, &m.coef, s.scale, &loss, &IrlsOptions::default()).unwrap();
+        assert!(rel_close(&again.coef, &m.coef, 1e-9), "{:?} vs {:?}", again.coef, m.coef);
+    }
+}
+
 #[test]
 fn regression_and_scale_equivariance() {
     let (x, y) = stackloss();

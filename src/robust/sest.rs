@@ -237,7 +237,10 @@ pub fn s_estimate_rows<R: Rows + ?Sized>(x: &R, y: &[f64], opts: &SOptions) -> R
         let loose = SOptions { tol: opts.tol.max(1e-6), ..opts.clone() };
         let mut leader: Option<Candidate> = None;
         for cand in best {
-            let (c, _) = iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, cand, &loose, tiny);
+            let (c, t) = iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, cand, &loose, tiny);
+            if super::profile::enabled() {
+                eprintln!("knotwise-profile: s race {t:?} scale {}", c.scale);
+            }
             if leader.as_ref().is_none_or(|b| c.scale < b.scale) {
                 leader = Some(c);
             }
