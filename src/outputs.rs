@@ -1,5 +1,7 @@
 //! Assemble the machine-readable outputs (results.json, rows.csv) of an [`Analysis`] and its digest.
 
+use std::fmt::Write as _;
+
 use crate::analysis::Analysis;
 use crate::fit::{self, RobustMethod};
 use crate::provenance;
@@ -349,29 +351,43 @@ pub fn rows_csv(a: &Analysis) -> String {
     }
     header.extend(["robust-weight", "robust-scaled-residual", "flagged", "leverage"]);
     let _ = w.write_record(&header);
-    let weights = rf.weights.clone().unwrap_or_default();
-    for i in 0..n {
-        let y = sel.robust_design.y[i];
-        let mut rec = vec![
-            a.frame.row_name(i),
-            a.frame.lines[i].to_string(),
-            num(y),
-            num(cf.fitted[i]),
-            num(cf.residuals[i]),
-            num(rf.fitted[i]),
-            num(rf.residuals[i]),
-        ];
-        if let Some(p) = &without_pred {
-            rec.push(num(p[i]));
-            rec.push(num(y - p[i]));
+    let mut out = w.into_inner().unwrap_or_default();
+    let weights = rf.weights.as_deref().unwrap_or(&[]);
+    // Rows are formatted in fixed blocks on the worker threads (one CSV writer per block, so quoting is
+    // the writer's own) and joined in block order: the same bytes for any thread count.
+    let blocks = crate::linalg::map_blocks(n, |lo, hi| {
+        let mut w = csv::WriterBuilder::new().terminator(csv::Terminator::Any(b'\n')).from_writer(Vec::new());
+        let mut buf = String::new();
+        let mut field = |w: &mut csv::Writer<Vec<u8>>, v: f64| {
+            buf.clear();
+            if v.is_finite() {
+                let _ = write!(buf, "{v}");
+            }
+            let _ = w.write_field(buf.as_bytes());
+        };
+        for i in lo..hi {
+            let y = sel.robust_design.y[i];
+            let _ = w.write_field(a.frame.row_name(i));
+            let _ = w.write_field(a.frame.lines[i].to_string());
+            for v in [y, cf.fitted[i], cf.residuals[i], rf.fitted[i], rf.residuals[i]] {
+                field(&mut w, v);
+            }
+            if let Some(p) = &without_pred {
+                field(&mut w, p[i]);
+                field(&mut w, y - p[i]);
+            }
+            field(&mut w, weights.get(i).copied().unwrap_or(f64::NAN));
+            field(&mut w, if rf.scale > 0.0 { rf.residuals[i] / rf.scale } else { f64::NAN });
+            let _ = w.write_field(if flagged[i] { "yes" } else { "no" });
+            field(&mut w, sens.leverage.hat[i]);
+            let _ = w.write_record(None::<&[u8]>);
         }
-        rec.push(num(weights.get(i).copied().unwrap_or(f64::NAN)));
-        rec.push(num(if rf.scale > 0.0 { rf.residuals[i] / rf.scale } else { f64::NAN }));
-        rec.push(if flagged[i] { "yes".into() } else { "no".into() });
-        rec.push(num(sens.leverage.hat[i]));
-        let _ = w.write_record(&rec);
+        w.into_inner().unwrap_or_default()
+    });
+    for block in blocks {
+        out.extend_from_slice(&block);
     }
-    String::from_utf8(w.into_inner().unwrap_or_default()).unwrap_or_default()
+    String::from_utf8(out).unwrap_or_default()
 }
 
 /// Whether any fit failed to converge (for `--strict`).
