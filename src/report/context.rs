@@ -19,7 +19,7 @@ use crate::fit::{self, RobustMethod};
 use crate::report::plots::{self, ChartSpec, Figure, Ink, Layer, LayerKind, LegendAt, Shape};
 use crate::results::{FitOut, Results, Sizes};
 
-/// Most points drawn in one scatter (every k-th row; flagged rows always kept).
+/// Most points drawn in one scatter (every k-th row), and most flagged rows drawn besides them.
 pub const MAX_POINTS: usize = 1200;
 /// Most rug ticks per smooth plot.
 pub const MAX_RUG: usize = 300;
@@ -1087,12 +1087,13 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
             String::new()
         };
         let desc = format!(
-            "Robust curve of {column} over {} to {} with its pointwise 95% band, the classical curve{}; {} of {n} robust partial residuals shown ({}, all flagged rows kept); {} marked with crosses{edge}; a rug of {} x values.{curve_range}",
+            "Robust curve of {column} over {} to {} with its pointwise 95% band, the classical curve{}; {} of {n} robust partial residuals shown ({}, {}); {} marked with crosses{edge}; a rug of {} x values.{curve_range}",
             sig(xmin, 4),
             sig(xmax, 4),
             if without.is_some() { " and the classical curve without flagged rows (dashed)" } else { "" },
             shown.len(),
             if k == 1 { "every row".to_string() } else { format!("every {} row", ordinal(k)) },
+            flagged_kept_words(&flagged[..flagged.len().min(n)]),
             plural(n_flag_shown, "flagged row", "flagged rows"),
             rug.len()
         );
@@ -1132,6 +1133,14 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
     })
 }
 
+/// How the flagged rows of a thinned plot were kept: all of them, or every j-th (see `plots::thin`).
+fn flagged_kept_words(flagged: &[bool]) -> String {
+    match plots::kept_step(flagged, MAX_POINTS) {
+        1 => "all flagged rows kept".to_string(),
+        j => format!("every {} flagged row kept", ordinal(j)),
+    }
+}
+
 fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[bool]) -> Result<DiagnosticsCtx, Error> {
     let rf = &a.selection.robust_fit;
     let n = scaled.len();
@@ -1142,7 +1151,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
     let thin_words = if k == 1 {
         "all rows shown".to_string()
     } else {
-        format!("every {} row shown and all flagged rows", ordinal(k))
+        format!("every {} row shown, {}", ordinal(k), flagged_kept_words(flagged))
     };
     let n_flagged = flagged.iter().filter(|f| **f).count();
     let split = |f: &dyn Fn(usize) -> (f64, f64)| {
@@ -1165,9 +1174,10 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
     let y_clip = clip.then_some((-lim * 1.06, lim * 1.06));
     let edge_words = if clip {
         format!(
-            "; the axis stops at ±{}, and {} beyond it are drawn at its edge as triangles",
+            "; the axis stops at ±{}, and {} beyond it ({}drawn at its edge as triangles)",
             short(lim),
-            plural(beyond, "row", "rows")
+            plural(beyond, "row lies", "rows lie"),
+            if n <= MAX_POINTS && plots::kept_step(flagged, MAX_POINTS) == 1 { "" } else { "those shown are " }
         )
     } else {
         String::new()
@@ -1226,9 +1236,11 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
     let mut order: Vec<usize> = (0..n).filter(|&i| scaled[i].is_finite()).collect();
     order.sort_by(|&x, &y| scaled[x].total_cmp(&scaled[y]).then(x.cmp(&y)));
     let m = order.len();
-    let keep_sorted: Vec<bool> =
-        (0..m).map(|j| j < 25 || j + 25 >= m || flagged.get(order[j]).copied().unwrap_or(false)).collect();
-    let q_idx = plots::thin(m, MAX_POINTS, &keep_sorted);
+    let flagged_sorted: Vec<bool> = (0..m).map(|j| flagged.get(order[j]).copied().unwrap_or(false)).collect();
+    let mut q_idx = plots::thin(m, MAX_POINTS, &flagged_sorted);
+    q_idx.extend((0..m.min(25)).chain(m.saturating_sub(25)..m));
+    q_idx.sort_unstable();
+    q_idx.dedup();
     let mut qp = Vec::new();
     let mut qf = Vec::new();
     for &j in &q_idx {
@@ -1258,8 +1270,12 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         id: "fig-7-2".into(),
         title: "Normal quantile plot of scaled robust residuals".into(),
         desc: format!(
-            "Sorted scaled robust residuals of {m} rows against standard normal quantiles at plotting positions (i − 0.5)/n; {} points shown (the 25 most extreme at each end, every flagged row and a regular thinning of the rest); the dashed line is y = x{edge_words}.",
-            q_idx.len()
+            "Sorted scaled robust residuals of {m} rows against standard normal quantiles at plotting positions (i − 0.5)/n; {} points shown (the 25 most extreme at each end, {} and a regular thinning of the rest); the dashed line is y = x{edge_words}.",
+            q_idx.len(),
+            match plots::kept_step(&flagged_sorted, MAX_POINTS) {
+                1 => "every flagged row".to_string(),
+                j => format!("every {} flagged row", ordinal(j)),
+            }
         ),
         x_label: "standard normal quantile".into(),
         y_label: "scaled robust residual".into(),
@@ -1410,8 +1426,13 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         id: "fig-7-5".into(),
         title: "Scaled robust residuals against leverage".into(),
         desc: format!(
-            "Scaled robust residuals against hat values of the robust design for {} shown rows; the dashed vertical line is 2p/n = {}; {} above it{edge_words}.",
+            "Scaled robust residuals against hat values of the robust design for {} shown rows{}; the dashed vertical line is 2p/n = {}; {} above it{edge_words}.",
             lev_idx.len(),
+            match (n <= MAX_POINTS, plots::kept_step(&keep, MAX_POINTS)) {
+                (true, _) => String::new(),
+                (false, 1) => " (flagged and high-leverage rows all kept, a regular thinning of the rest)".to_string(),
+                (false, j) => format!(" (every {} flagged or high-leverage row, a regular thinning of the rest)", ordinal(j)),
+            },
             fixed(thr, 3),
             plural(a.sensitivity.leverage.high.len(), "row lies", "rows lie")
         ),

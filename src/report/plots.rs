@@ -589,11 +589,33 @@ fn round_token(token: &str) -> String {
     }
 }
 
-/// Indices 0..n thinned to at most `max` by taking every k-th one (k = ⌈n / max⌉), plus every index
-/// in `keep` (e.g. flagged rows). Deterministic; ascending.
+/// Indices 0..n thinned to at most `max` by taking every k-th one (k = ⌈n / max⌉), plus the indices
+/// in `keep` (e.g. flagged rows): all of them when there are at most `max`, else every j-th of them
+/// (j = [`kept_step`]), so a plot never carries more than about 2·max points. Deterministic; ascending.
 pub fn thin(n: usize, max: usize, keep: &[bool]) -> Vec<usize> {
     let k = if max == 0 { n.max(1) } else { n.div_ceil(max).max(1) };
-    (0..n).filter(|&i| i % k == 0 || keep.get(i).copied().unwrap_or(false)).collect()
+    let j = kept_step(&keep[..keep.len().min(n)], max);
+    let mut seen = 0usize;
+    (0..n)
+        .filter(|&i| {
+            let kept = keep.get(i).copied().unwrap_or(false) && {
+                seen += 1;
+                (seen - 1) % j == 0
+            };
+            i % k == 0 || kept
+        })
+        .collect()
+}
+
+/// The step j with which [`thin`] takes the indices of `keep`: 1 (all of them) when at most `max` are
+/// set, else ⌈count / max⌉.
+pub fn kept_step(keep: &[bool], max: usize) -> usize {
+    let count = keep.iter().filter(|k| **k).count();
+    if max == 0 || count <= max {
+        1
+    } else {
+        count.div_ceil(max)
+    }
 }
 
 #[cfg(test)]
@@ -614,6 +636,10 @@ mod tests {
         keep[3] = true;
         assert_eq!(thin(10, 5, &keep), vec![0, 2, 3, 4, 6, 8]);
         assert_eq!(thin(3, 5, &[]), vec![0, 1, 2]);
+        // More kept indices than `max`: every second of them (1, 5, 9), besides every 4th row.
+        let keep: Vec<bool> = (0..12).map(|i| i % 2 == 1).collect();
+        assert_eq!(kept_step(&keep, 3), 2);
+        assert_eq!(thin(12, 3, &keep), vec![0, 1, 4, 5, 8, 9]);
     }
 
     #[test]
