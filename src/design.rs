@@ -452,14 +452,14 @@ impl Rows for Design {
                     }
                 }
                 Store::Smooth { start, m: width_cols, width, first, values } => {
+                    // The row's basis values that fall on kept columns: the first `len` of them.
                     let f = first[i] as usize;
-                    for (j, v) in values[i * width..(i + 1) * width].iter().enumerate() {
-                        if f + j < *width_cols {
-                            idx[m] = start + f + j;
-                            val[m] = *v;
-                            m += 1;
-                        }
+                    let len = (*width).min(width_cols.saturating_sub(f));
+                    val[m..m + len].copy_from_slice(&values[i * width..i * width + len]);
+                    for (j, slot) in idx[m..m + len].iter_mut().enumerate() {
+                        *slot = start + f + j;
                     }
+                    m += len;
                 }
             }
         }

@@ -718,13 +718,15 @@ impl NormalAcc {
         let (p, width) = (self.p, self.p + 1);
         self.sum_w += wi;
         self.sum_wy += wy;
-        for a in 0..idx.len() {
+        let m = idx.len().min(val.len());
+        let (idx, val) = (&idx[..m], &val[..m]);
+        for a in 0..m {
             let ja = idx[a];
             let wd = wi * val[a];
             self.sum_wd[ja] += wd;
             let dst = &mut self.part[ja * width..(ja + 1) * width];
-            for b in a..idx.len() {
-                dst[idx[b]] += wd * val[b];
+            for (&jb, &vb) in idx[a..].iter().zip(&val[a..]) {
+                dst[jb] += wd * vb;
             }
             dst[p] += val[a] * wy;
         }
