@@ -7,7 +7,7 @@ cd "$(dirname "$0")/.."
 export KNOTWISE_FUZZ_CASES="${KNOTWISE_FUZZ_CASES:-15000}"
 echo "fuzz smoke: ${KNOTWISE_FUZZ_CASES} cases per target, seed ${KNOTWISE_FUZZ_SEED:-default}"
 log="$(mktemp)"
-cargo test --release --test fuzz_props -- --nocapture --test-threads=2 >"$log" 2>&1
+CARGO_PROFILE_RELEASE_LTO=false CARGO_PROFILE_RELEASE_CODEGEN_UNITS=16 cargo test --release --test fuzz_props -- --nocapture --test-threads=2 >"$log" 2>&1
 status=$?
 grep -aE '^fuzz |test result|panicked|input saved' "$log" || true
 if [ "$status" -ne 0 ]; then
