@@ -203,6 +203,15 @@ pub fn classical(design: &Design) -> Result<Fit, FitError> {
     ))
 }
 
+/// The residual sum of squares of the least-squares fit alone (what a classical criterion needs), with
+/// the same errors as [`classical`].
+pub fn classical_rss(design: &Design) -> Result<f64, FitError> {
+    if design.n <= design.p {
+        return Err(FitError::TooFewRows { rows: design.n, columns: design.p });
+    }
+    Ok(linalg::least_squares_rows(design, &design.y, None)?.rss)
+}
+
 /// The S-estimate of a design (the robust start and scale).
 pub fn s_estimate(design: &Design, options: &SOptions) -> Result<SEstimate, FitError> {
     Ok(sest::s_estimate_rows(design, &design.y, options)?)

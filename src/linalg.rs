@@ -76,6 +76,33 @@ pub fn map_blocks<T: Send>(n: usize, f: impl Fn(usize, usize) -> T + Sync) -> Ve
     })
 }
 
+/// `f(k)` for the independent tasks k = 0..tasks (grid points, say), results in task order. Tasks are
+/// dealt to threads round-robin and each runs as a worker (its own block helpers on its thread); a
+/// single task runs on the calling thread with the block helpers parallel. Results are those of a
+/// sequential loop, since every block helper's answer is independent of threads.
+pub fn map_tasks<T: Send>(tasks: usize, f: impl Fn(usize) -> T + Sync) -> Vec<T> {
+    let t = if IN_WORKER.with(|c| c.get()) { 1 } else { threads().min(tasks) };
+    if t <= 1 {
+        return (0..tasks).map(f).collect();
+    }
+    let mut slots: Vec<Option<T>> = (0..tasks).map(|_| None).collect();
+    std::thread::scope(|s| {
+        let f = &f;
+        let handles: Vec<_> = (0..t)
+            .map(|k| {
+                s.spawn(move || as_worker(|| (k..tasks).step_by(t).map(|i| (i, f(i))).collect::<Vec<(usize, T)>>()))
+            })
+            .collect();
+        for h in handles {
+            for (i, v) in h.join().expect("linalg worker thread panicked") {
+                slots[i] = Some(v);
+            }
+        }
+    });
+    // Every slot was filled by exactly one thread above (the round-robin covers 0..tasks).
+    slots.into_iter().flatten().collect()
+}
+
 /// Σ over blocks of `f(start, end)`, added in block order (see [`BLOCK_ROWS`]).
 pub fn sum_blocks(n: usize, f: impl Fn(usize, usize) -> f64 + Sync) -> f64 {
     map_blocks(n, f).into_iter().fold(0.0, |a, b| a + b)

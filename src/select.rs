@@ -263,6 +263,25 @@ impl Evaluator<'_> {
     }
 }
 
+/// Evaluate independent grid points, as many at a time as there are worker threads (each point's
+/// kernels then run on its own thread; results are those of a sequential loop, see
+/// `linalg::map_tasks`), adding them to `kept` in list order. Waves keep the memory of the designs in
+/// flight to one per thread. The first error in list order is returned, as a sequential loop would.
+fn evaluate_in_waves(
+    ev: &Evaluator<'_>,
+    points: &[Vec<usize>],
+    kept: &mut Keeper,
+    report: &dyn Fn(usize),
+) -> Result<(), SelectError> {
+    for wave in points.chunks(crate::linalg::threads().max(1)) {
+        for e in crate::linalg::map_tasks(wave.len(), |i| ev.evaluate(&wave[i])) {
+            kept.add(e?);
+            report(kept.points.len());
+        }
+    }
+    Ok(())
+}
+
 /// (X'X)⁻¹ X'v: the least-squares coefficients of `v` on the design.
 fn project(design: &Design, xtx_inverse: &[f64], v: &[f64]) -> Vec<f64> {
     let p = design.p;
@@ -379,10 +398,8 @@ pub fn select_with_progress(
     let mut kept = Keeper::default();
     if search == SearchKind::CoordinateWise {
         // Start from the best shared size, then improve term by term, for each criterion.
-        for &k in &spec.shared {
-            kept.add(ev.evaluate(&vec![k; n_smooth])?);
-            report(shared_step + kept.points.len());
-        }
+        let shared: Vec<Vec<usize>> = spec.shared.iter().map(|&k| vec![k; n_smooth]).collect();
+        evaluate_in_waves(&ev, &shared, &mut kept, &|done| report(shared_step + done))?;
         for which in 0..2 {
             let key = |p: &GridPoint| if which == 0 { p.bic } else { p.rbic };
             let Some(mut current) = argmin(&kept.points, key).map(|i| kept.points[i].sizes.clone()) else { continue };
@@ -413,10 +430,7 @@ pub fn select_with_progress(
             }
         }
     } else {
-        for s in &candidates {
-            kept.add(ev.evaluate(s)?);
-            report(shared_step + kept.points.len());
-        }
+        evaluate_in_waves(&ev, &candidates, &mut kept, &|done| report(shared_step + done))?;
     }
 
     let Keeper { points, classical, robust } = kept;

@@ -34,7 +34,8 @@ pub struct SOptions {
     /// a fitted value relative to the scale (1e-10).
     pub tol: f64,
     /// When n > search_rows, the random search (subsamples and refining) runs on a seeded random subset
-    /// of this many rows (5 000); the best candidates are iterated to convergence on it and the winner's
+    /// of this many rows (5 000); the best candidates race to 1e-3 on it, the winner is iterated to 1e-7
+    /// (subset sampling error is far larger) and its
     /// scale is re-solved on all n rows. The
     /// nested-subset idea is that of Rousseeuw & Van Driessen (1999) for large n, used for S-estimates
     /// by Salibián-Barrera & Yohai (2006) (from memory).
@@ -233,8 +234,12 @@ pub fn s_estimate_rows<R: Rows + ?Sized>(x: &R, y: &[f64], opts: &SOptions) -> R
         // Yohai 2006). Full-data I-steps converge linearly and would cost ~100 passes over every row;
         // the MM step that follows refines the coefficients on all rows anyway.
         let _t = super::profile::stage(|| format!("s-estimate {} candidates on the {ns}-row subset", best.len()));
-        // The kept candidates race to a loose tolerance; only the winner is iterated to the full one.
-        let loose = SOptions { tol: opts.tol.max(1e-6), ..opts.clone() };
+        // The kept candidates race to a loose tolerance (1e-3) and the winner is iterated to at most
+        // SUBSET_TOL: the subset's own sampling error in the coefficients, of order ns^(-1/2) of the
+        // scale, is far larger than either, the scale is then solved on all rows to full precision,
+        // and the MM step refines the coefficients on all rows.
+        let loose = SOptions { tol: opts.tol.max(1e-3), ..opts.clone() };
+        let tight = SOptions { tol: opts.tol.max(SUBSET_TOL), ..opts.clone() };
         let mut leader: Option<Candidate> = None;
         for cand in best {
             let (c, t) = iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, cand, &loose, tiny);
@@ -245,7 +250,7 @@ pub fn s_estimate_rows<R: Rows + ?Sized>(x: &R, y: &[f64], opts: &SOptions) -> R
                 leader = Some(c);
             }
         }
-        let on_subset = leader.map(|c| iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, c, opts, tiny));
+        let on_subset = leader.map(|c| iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, c, &tight, tiny));
         drop(xs);
         drop(ys);
         let Some((c, subset_term)) = on_subset else {
@@ -301,6 +306,9 @@ pub fn s_estimate_rows<R: Rows + ?Sized>(x: &R, y: &[f64], opts: &SOptions) -> R
         search_rows: ns,
     })
 }
+
+/// Tolerance of the winner's final iteration when the search ran on a subset (see `s_estimate_rows`).
+const SUBSET_TOL: f64 = 1e-7;
 
 /// Subsamples refined together (drawn in sequence, refined in parallel, scored in sequence).
 const REFINE_BATCH: usize = 32;
