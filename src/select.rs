@@ -8,6 +8,8 @@
 //! fit at every grid point holds it fixed (robust criteria commonly take the full model's scale, e.g.
 //! Ronchetti & Staudte 1994).
 
+use std::sync::Arc;
+
 use crate::data::Frame;
 use crate::design::{Design, DesignError, ModelTerms, SortedColumns};
 use crate::fit::{self, Fit, FitError, RobustMethod};
@@ -98,9 +100,9 @@ pub struct Selection {
     pub scale_source: Vec<usize>,
     /// The S-estimate behind the robust fit at its chosen point (or of the richest model).
     pub s_estimate: Option<SEstimate>,
-    pub classical_design: Design,
+    pub classical_design: Arc<Design>,
     pub classical_fit: Fit,
-    pub robust_design: Design,
+    pub robust_design: Arc<Design>,
     pub robust_fit: Fit,
 }
 
@@ -263,6 +265,9 @@ impl Evaluator<'_> {
     }
 }
 
+/// Above this many rows, grid points are evaluated one at a time (see [`evaluate_in_waves`]).
+const WAVE_MAX_ROWS: usize = 200_000;
+
 /// Evaluate independent grid points, as many at a time as there are worker threads (each point's
 /// kernels then run on its own thread; results are those of a sequential loop, see
 /// `linalg::map_tasks`), adding them to `kept` in list order. Waves keep the memory of the designs in
@@ -273,7 +278,9 @@ fn evaluate_in_waves(
     kept: &mut Keeper,
     report: &dyn Fn(usize),
 ) -> Result<(), SelectError> {
-    for wave in points.chunks(crate::linalg::threads().max(1)) {
+    // Large designs are evaluated one at a time (each already parallel over its rows): memory first.
+    let width = if ev.frame.n_used() <= WAVE_MAX_ROWS { crate::linalg::threads().max(1) } else { 1 };
+    for wave in points.chunks(width) {
         for e in crate::linalg::map_tasks(wave.len(), |i| ev.evaluate(&wave[i])) {
             kept.add(e?);
             report(kept.points.len());
@@ -308,8 +315,8 @@ struct Keeper {
     points: Vec<GridPoint>,
     /// The classical best, with the robust fit at the same point (the fallback when no point has a robust
     /// criterion because the robust scale collapsed everywhere).
-    classical: Option<(usize, f64, Design, Fit, Fit, Option<SEstimate>)>,
-    robust: Option<(usize, f64, Design, Fit, Option<SEstimate>)>,
+    classical: Option<(usize, f64, Arc<Design>, Fit, Fit, Option<SEstimate>)>,
+    robust: Option<(usize, f64, Arc<Design>, Fit, Option<SEstimate>)>,
 }
 
 impl Keeper {
@@ -317,10 +324,12 @@ impl Keeper {
         let i = self.points.len();
         let better = |v: Option<f64>, best: Option<f64>| v.is_some_and(|v| v.is_finite() && best.is_none_or(|b| v < b));
         if let (Some((design, classical)), Some((robust, s_est))) = (e.classical, e.robust) {
+            // One design shared by both criteria when the same point is best for each.
+            let design = Arc::new(design);
             let c_better = better(e.point.bic, self.classical.as_ref().map(|c| c.1));
             let r_better = better(e.point.rbic, self.robust.as_ref().map(|r| r.1));
             let (c_design, r_design) = match (c_better, r_better) {
-                (true, true) => (Some(design.clone()), Some(design)),
+                (true, true) => (Some(Arc::clone(&design)), Some(design)),
                 (true, false) => (Some(design), None),
                 (false, true) => (None, Some(design)),
                 (false, false) => (None, None),
@@ -442,7 +451,7 @@ pub fn select_with_progress(
     let robust_criterion_collapsed = robust.is_none();
     let (ri, robust_design, robust_fit, s_at_point) = match robust {
         Some((ri, _, d, f, s)) => (ri, d, f, s),
-        None => (ci, classical_design.clone(), robust_at_ci, s_at_ci),
+        None => (ci, Arc::clone(&classical_design), robust_at_ci, s_at_ci),
     };
     // The reported robust fit: from its converged coefficients, once more with the final QR solve (one
     // reweighting step; the joint Huber fit re-estimates its own scale and always ends with QR).

@@ -239,9 +239,16 @@ pub fn analyse(
         if let Ok(f) = fit::classical(&sub) {
             classical_without = Some((sub, f));
         }
-        let rsub = rd.subset(&keep);
-        let xtx = classical_without.as_ref().filter(|_| cd.sizes == rd.sizes).map(|(_, f)| f.xtx_inverse.as_slice());
-        if let Ok(f) = fit::robust_with_xtx(&rsub, method, Some(&rf.coef), rf.scale, irls, xtx) {
+        // The robust refit reuses the classical subset when both fits chose the same sizes.
+        let same = cd.sizes == rd.sizes;
+        let rsub_own = if same { None } else { Some(rd.subset(&keep)) };
+        let rsub = match (&rsub_own, &classical_without) {
+            (Some(d), _) => d,
+            (None, Some((d, _))) => d,
+            (None, None) => &cd.subset(&keep),
+        };
+        let xtx = classical_without.as_ref().filter(|_| same).map(|(_, f)| f.xtx_inverse.as_slice());
+        if let Ok(f) = fit::robust_with_xtx(rsub, method, Some(&rf.coef), rf.scale, irls, xtx) {
             let lin = linear_columns(rd);
             let mv = lin
                 .iter()

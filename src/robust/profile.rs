@@ -1,5 +1,6 @@
 //! Opt-in stage timing for performance work: with `KNOTWISE_PROFILE=1` in the environment, each timed
-//! stage prints one line `knotwise-profile: <stage> <seconds> s` to stderr when it ends. Off by default;
+//! stage prints one line `knotwise-profile: <stage> <seconds> s (rss <MB> MB)` to stderr when it ends
+//! (resident memory where /proc/self/statm can be read). Off by default;
 //! it never touches any result or output file (timings are not deterministic and must not be hashed).
 
 use std::sync::OnceLock;
@@ -25,7 +26,15 @@ pub fn stage(name: impl FnOnce() -> String) -> Stage {
 impl Drop for Stage {
     fn drop(&mut self) {
         if let Some(name) = &self.name {
-            eprintln!("knotwise-profile: {name} {:.3} s", self.start.elapsed().as_secs_f64());
+            eprintln!("knotwise-profile: {name} {:.3} s{}", self.start.elapsed().as_secs_f64(), resident());
         }
     }
+}
+
+/// " (rss N MB)" from /proc/self/statm (resident pages × 4 KiB), or nothing where that is unavailable.
+fn resident() -> String {
+    std::fs::read_to_string("/proc/self/statm")
+        .ok()
+        .and_then(|t| t.split_whitespace().nth(1).and_then(|v| v.parse::<u64>().ok()))
+        .map_or_else(String::new, |pages| format!(" (rss {} MB)", pages * 4096 / 1_000_000))
 }
