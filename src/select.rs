@@ -308,6 +308,11 @@ fn argmin(points: &[GridPoint], key: impl Fn(&GridPoint) -> Option<f64>) -> Opti
     best.map(|(i, _)| i)
 }
 
+/// The classical best: point index, BIC, design, classical fit, robust fit there, S-estimate there.
+type KeptClassical = (usize, f64, Arc<Design>, Fit, Fit, Option<SEstimate>);
+/// The robust best: point index, robust criterion, design, robust fit, S-estimate there.
+type KeptRobust = (usize, f64, Arc<Design>, Fit, Option<SEstimate>);
+
 /// Every evaluated point, and the designs and fits of the best point so far for each criterion only,
 /// so that memory stays at a few designs however large the grid (ties keep the earlier point).
 #[derive(Default)]
@@ -315,8 +320,8 @@ struct Keeper {
     points: Vec<GridPoint>,
     /// The classical best, with the robust fit at the same point (the fallback when no point has a robust
     /// criterion because the robust scale collapsed everywhere).
-    classical: Option<(usize, f64, Arc<Design>, Fit, Fit, Option<SEstimate>)>,
-    robust: Option<(usize, f64, Arc<Design>, Fit, Option<SEstimate>)>,
+    classical: Option<KeptClassical>,
+    robust: Option<KeptRobust>,
 }
 
 impl Keeper {
