@@ -53,11 +53,34 @@ pub fn load_frame(study: &Study, spec_display: &str) -> Result<data::Frame> {
     Ok(frame)
 }
 
-/// Every output of a run, in memory.
+/// Every output of a run: the files in memory, except rows.csv, which is written from `analysis` as
+/// a stream (it is the one output that grows with the data).
 pub struct RunOutputs {
     pub analysis: Analysis,
     pub results: crate::results::Results,
     pub files: Vec<(String, Vec<u8>)>,
+}
+
+/// Where an output file's bytes come from.
+pub enum FileContent<'a> {
+    Bytes(&'a [u8]),
+    /// rows.csv of this analysis, formatted while it is written.
+    Rows(&'a Analysis),
+}
+
+impl RunOutputs {
+    /// The files of a run in manifest order ([`OUTPUT_FILES`]).
+    pub fn contents(&self) -> Vec<(&str, FileContent<'_>)> {
+        OUTPUT_FILES
+            .iter()
+            .filter_map(|&name| {
+                if name == "rows.csv" {
+                    return Some((name, FileContent::Rows(&self.analysis)));
+                }
+                self.files.iter().find(|(n, _)| n == name).map(|(_, b)| (name, FileContent::Bytes(b.as_slice())))
+            })
+            .collect()
+    }
 }
 
 /// Run the whole study in memory. `spec_dir_from_out` is written into rerun.json.
@@ -76,9 +99,8 @@ pub fn compute(
     let t = stage(|| "analysis (selection and sensitivity)".into());
     let analysis = analysis::analyse_with_progress(study, frame, spec_display, progress)?;
     drop(t);
-    let t = stage(|| "results.json and rows.csv".into());
+    let t = stage(|| "results.json".into());
     let results = outputs::results(&analysis, &outputs::Inputs { spec_bytes, resolved_yaml: &resolved });
-    let rows = outputs::rows_csv(&analysis);
     drop(t);
     let _t = stage(|| "report".into());
     let json =
@@ -87,7 +109,6 @@ pub fn compute(
     let files = vec![
         ("report.html".to_string(), html.into_bytes()),
         ("results.json".to_string(), json.into_bytes()),
-        ("rows.csv".to_string(), rows.into_bytes()),
         ("study.resolved.yaml".to_string(), resolved.into_bytes()),
         ("rerun.json".to_string(), rerun_json.into_bytes()),
     ];
@@ -181,7 +202,9 @@ fn run(spec_path: &Path, out: Option<&Path>, strict: bool, quiet: bool) -> Resul
     let outputs = compute(study, &spec_bytes, &spec_path.display().to_string(), rerun_json, &progress);
     bar.finish_and_clear();
     let outputs = outputs?;
-    write_outputs(&out_dir, &outputs.files)?;
+    let t = crate::robust::profile::stage(|| "write the outputs (rows.csv formatted on the way)".into());
+    write_outputs(&out_dir, &outputs.contents())?;
+    drop(t);
     let r = &outputs.results;
     let mut msg = format!(
         "wrote {} (report.html, results.json, rows.csv, study.resolved.yaml, rerun.json, manifest.sha256)\n",
@@ -204,7 +227,7 @@ fn run(spec_path: &Path, out: Option<&Path>, strict: bool, quiet: bool) -> Resul
 
 /// Write the files into `dir` atomically: a sibling temporary folder is filled, then renamed into place.
 /// An existing `dir` is replaced only if it is empty or holds a knotwise manifest.
-pub fn write_outputs(dir: &Path, files: &[(String, Vec<u8>)]) -> Result<()> {
+pub fn write_outputs(dir: &Path, files: &[(&str, FileContent<'_>)]) -> Result<()> {
     let parent = match dir.parent() {
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
@@ -240,11 +263,27 @@ pub fn write_outputs(dir: &Path, files: &[(String, Vec<u8>)]) -> Result<()> {
             .hint("check that the folder is writable, or choose another with --out")
     })?;
     let result = (|| -> Result<()> {
-        let mut listed: Vec<(&str, &[u8])> = Vec::new();
-        for (file, bytes) in files {
+        let mut listed: Vec<(&str, String)> = Vec::new();
+        for (file, content) in files {
             let path = tmp.join(file);
-            std::fs::write(&path, bytes).map_err(|e| Error::io("write", &path, &e))?;
-            listed.push((file.as_str(), bytes.as_slice()));
+            let hex = match content {
+                FileContent::Bytes(bytes) => {
+                    std::fs::write(&path, bytes).map_err(|e| Error::io("write", &path, &e))?;
+                    provenance::sha256_hex(bytes)
+                }
+                FileContent::Rows(analysis) => {
+                    let written = (|| -> std::io::Result<String> {
+                        let f = std::fs::File::create(&path)?;
+                        let mut w = provenance::HashingWriter::new(std::io::BufWriter::with_capacity(1 << 20, f));
+                        outputs::write_rows_csv(analysis, &mut w)?;
+                        let (buf, hex) = w.finish()?;
+                        drop(buf);
+                        Ok(hex)
+                    })();
+                    written.map_err(|e| Error::io("write", &path, &e))?
+                }
+            };
+            listed.push((file, hex));
         }
         let manifest = provenance::manifest(&listed);
         let mpath = tmp.join("manifest.sha256");

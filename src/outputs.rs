@@ -330,6 +330,19 @@ pub fn digest(results: &Results) -> String {
 
 /// rows.csv: one row per used data row.
 pub fn rows_csv(a: &Analysis) -> String {
+    let mut out = Vec::new();
+    // Writing into memory cannot fail.
+    let _ = write_rows_csv(a, &mut out);
+    String::from_utf8(out).unwrap_or_default()
+}
+
+/// Row blocks formatted together before they are written (about 260 000 rows, some 50 MB of text).
+const ROWS_PER_WAVE_BLOCKS: usize = 64;
+
+/// rows.csv written to `out` as it is formatted, so the whole text never sits in memory: waves of row
+/// blocks are formatted on the worker threads (one CSV writer per block, so quoting is the writer's
+/// own) and written in block order, the same bytes for any thread count.
+pub fn write_rows_csv(a: &Analysis, out: &mut dyn std::io::Write) -> std::io::Result<()> {
     let sel = &a.selection;
     let sens = &a.sensitivity;
     let rf = &sel.robust_fit;
@@ -351,43 +364,46 @@ pub fn rows_csv(a: &Analysis) -> String {
     }
     header.extend(["robust-weight", "robust-scaled-residual", "flagged", "leverage"]);
     let _ = w.write_record(&header);
-    let mut out = w.into_inner().unwrap_or_default();
+    out.write_all(&w.into_inner().unwrap_or_default())?;
     let weights = rf.weights.as_deref().unwrap_or(&[]);
-    // Rows are formatted in fixed blocks on the worker threads (one CSV writer per block, so quoting is
-    // the writer's own) and joined in block order: the same bytes for any thread count.
-    let blocks = crate::linalg::map_blocks(n, |lo, hi| {
-        let mut w = csv::WriterBuilder::new().terminator(csv::Terminator::Any(b'\n')).from_writer(Vec::new());
-        let mut buf = String::new();
-        let mut field = |w: &mut csv::Writer<Vec<u8>>, v: f64| {
-            buf.clear();
-            if v.is_finite() {
-                let _ = write!(buf, "{v}");
+    let block_rows = crate::linalg::BLOCK_ROWS;
+    let wave_rows = block_rows * ROWS_PER_WAVE_BLOCKS;
+    for wave_lo in (0..n).step_by(wave_rows) {
+        let wave_n = wave_rows.min(n - wave_lo);
+        let blocks = crate::linalg::map_blocks(wave_n, |lo, hi| {
+            let mut w = csv::WriterBuilder::new().terminator(csv::Terminator::Any(b'\n')).from_writer(Vec::new());
+            let mut buf = String::new();
+            let mut field = |w: &mut csv::Writer<Vec<u8>>, v: f64| {
+                buf.clear();
+                if v.is_finite() {
+                    let _ = write!(buf, "{v}");
+                }
+                let _ = w.write_field(buf.as_bytes());
+            };
+            for i in wave_lo + lo..wave_lo + hi {
+                let y = sel.robust_design.y[i];
+                let _ = w.write_field(a.frame.row_name(i));
+                let _ = w.write_field(a.frame.lines[i].to_string());
+                for v in [y, cf.fitted[i], cf.residuals[i], rf.fitted[i], rf.residuals[i]] {
+                    field(&mut w, v);
+                }
+                if let Some(p) = &without_pred {
+                    field(&mut w, p[i]);
+                    field(&mut w, y - p[i]);
+                }
+                field(&mut w, weights.get(i).copied().unwrap_or(f64::NAN));
+                field(&mut w, if rf.scale > 0.0 { rf.residuals[i] / rf.scale } else { f64::NAN });
+                let _ = w.write_field(if flagged[i] { "yes" } else { "no" });
+                field(&mut w, sens.leverage.hat[i]);
+                let _ = w.write_record(None::<&[u8]>);
             }
-            let _ = w.write_field(buf.as_bytes());
-        };
-        for i in lo..hi {
-            let y = sel.robust_design.y[i];
-            let _ = w.write_field(a.frame.row_name(i));
-            let _ = w.write_field(a.frame.lines[i].to_string());
-            for v in [y, cf.fitted[i], cf.residuals[i], rf.fitted[i], rf.residuals[i]] {
-                field(&mut w, v);
-            }
-            if let Some(p) = &without_pred {
-                field(&mut w, p[i]);
-                field(&mut w, y - p[i]);
-            }
-            field(&mut w, weights.get(i).copied().unwrap_or(f64::NAN));
-            field(&mut w, if rf.scale > 0.0 { rf.residuals[i] / rf.scale } else { f64::NAN });
-            let _ = w.write_field(if flagged[i] { "yes" } else { "no" });
-            field(&mut w, sens.leverage.hat[i]);
-            let _ = w.write_record(None::<&[u8]>);
+            w.into_inner().unwrap_or_default()
+        });
+        for block in blocks {
+            out.write_all(&block)?;
         }
-        w.into_inner().unwrap_or_default()
-    });
-    for block in blocks {
-        out.extend_from_slice(&block);
     }
-    String::from_utf8(out).unwrap_or_default()
+    Ok(())
 }
 
 /// Whether any fit failed to converge (for `--strict`).

@@ -8,7 +8,38 @@ use sha2::{Digest, Sha256};
 
 /// Lower-case hex sha256 of bytes.
 pub fn sha256_hex(bytes: &[u8]) -> String {
-    let d = Sha256::digest(bytes);
+    hex(&Sha256::digest(bytes))
+}
+
+/// A writer that passes bytes on and hashes them (sha256) on the way, for files written as streams.
+pub struct HashingWriter<W: std::io::Write> {
+    inner: W,
+    hasher: Sha256,
+}
+
+impl<W: std::io::Write> HashingWriter<W> {
+    pub fn new(inner: W) -> Self {
+        HashingWriter { inner, hasher: Sha256::new() }
+    }
+    /// Flush and return the inner writer with the lower-case hex sha256 of everything written.
+    pub fn finish(mut self) -> std::io::Result<(W, String)> {
+        self.inner.flush()?;
+        Ok((self.inner, hex(&self.hasher.finalize())))
+    }
+}
+
+impl<W: std::io::Write> std::io::Write for HashingWriter<W> {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        let k = self.inner.write(buf)?;
+        self.hasher.update(&buf[..k]);
+        Ok(k)
+    }
+    fn flush(&mut self) -> std::io::Result<()> {
+        self.inner.flush()
+    }
+}
+
+fn hex(d: &[u8]) -> String {
     let mut s = String::with_capacity(64);
     for b in d {
         s.push_str(&format!("{b:02x}"));
@@ -27,10 +58,10 @@ pub fn target() -> String {
 }
 
 /// A `sha256sum -c` manifest: `<hex>  <name>` per line, names in the given order.
-pub fn manifest(files: &[(&str, &[u8])]) -> String {
+pub fn manifest(files: &[(&str, String)]) -> String {
     let mut out = String::new();
-    for (name, bytes) in files {
-        out.push_str(&sha256_hex(bytes));
+    for (name, hex) in files {
+        out.push_str(hex);
         out.push_str("  ");
         out.push_str(name);
         out.push('\n');
@@ -66,9 +97,20 @@ mod tests {
 
     #[test]
     fn manifest_round_trip() {
-        let m = manifest(&[("a.txt", b"abc"), ("b.txt", b"")]);
+        let m = manifest(&[("a.txt", sha256_hex(b"abc")), ("b.txt", sha256_hex(b""))]);
         let parsed = parse_manifest(&m).unwrap();
         assert_eq!(parsed[0].0, "a.txt");
         assert_eq!(parsed[1].1, "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855");
+    }
+
+    #[test]
+    fn hashing_writer_matches_the_one_shot_hash() {
+        use std::io::Write;
+        let mut w = HashingWriter::new(Vec::new());
+        w.write_all(b"ab").unwrap();
+        w.write_all(b"c").unwrap();
+        let (bytes, hex) = w.finish().unwrap();
+        assert_eq!(bytes, b"abc");
+        assert_eq!(hex, sha256_hex(b"abc"));
     }
 }
