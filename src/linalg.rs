@@ -49,8 +49,12 @@ pub fn as_worker<R>(f: impl FnOnce() -> R) -> R {
     out
 }
 
+/// Fewer blocks than this run on the calling thread: starting threads costs more than a few blocks of
+/// work (speed only; the blocks, and so the results, are the same).
+const MIN_PARALLEL_BLOCKS: usize = 4;
+
 fn available_threads(nb: usize) -> usize {
-    if IN_WORKER.with(|c| c.get()) {
+    if IN_WORKER.with(|c| c.get()) || nb < MIN_PARALLEL_BLOCKS {
         1
     } else {
         threads().min(nb)
@@ -244,14 +248,15 @@ impl Rows for Dense<'_> {
     fn deviation(&self, i: usize, c: &[f64], idx: &mut [usize], val: &mut [f64]) -> usize {
         let p = self.p;
         let row = &self.x[i * p..(i + 1) * p];
+        let (idx, val) = (&mut idx[..p], &mut val[..p]);
+        // Branch-free compaction: every entry is written at the next free slot, which advances only
+        // for a non-zero (which entries are zero changes from row to row, so a branch mispredicts).
         let mut m = 0;
-        for j in 0..p {
-            let d = row[j] - c[j];
-            if d != 0.0 {
-                idx[m] = j;
-                val[m] = d;
-                m += 1;
-            }
+        for (j, (&x, &cj)) in row.iter().zip(&c[..p]).enumerate() {
+            let d = x - cj;
+            idx[m] = j;
+            val[m] = d;
+            m += usize::from(d != 0.0);
         }
         m
     }

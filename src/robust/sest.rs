@@ -240,9 +240,13 @@ pub fn s_estimate_rows<R: Rows + ?Sized>(x: &R, y: &[f64], opts: &SOptions) -> R
         // and the MM step refines the coefficients on all rows.
         let loose = SOptions { tol: opts.tol.max(1e-3), ..opts.clone() };
         let tight = SOptions { tol: opts.tol.max(SUBSET_TOL), ..opts.clone() };
+        // The candidates race independently, one per worker thread (each computed as on one thread, so
+        // the winner does not depend on the thread count); the first of equal scales wins, as in order.
+        let raced = crate::linalg::map_tasks(best.len(), |k| {
+            iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, best[k].clone(), &loose, tiny)
+        });
         let mut leader: Option<Candidate> = None;
-        for cand in best {
-            let (c, t) = iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, cand, &loose, tiny);
+        for (c, t) in raced {
             if super::profile::enabled() {
                 eprintln!("knotwise-profile: s race {t:?} scale {}", c.scale);
             }
@@ -282,10 +286,11 @@ pub fn s_estimate_rows<R: Rows + ?Sized>(x: &R, y: &[f64], opts: &SOptions) -> R
     }
     // The kept candidates race to a loose tolerance; only the winner is iterated to the full one.
     let loose = SOptions { tol: opts.tol.max(1e-6), ..opts.clone() };
+    let raced = crate::linalg::map_tasks(best.len(), |k| {
+        iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, best[k].clone(), &loose, tiny)
+    });
     let mut leader: Option<Candidate> = None;
-    for cand in best {
-        let _t = super::profile::stage(|| "s-estimate race of one candidate".into());
-        let (c, _) = iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, cand, &loose, tiny);
+    for (c, _) in raced {
         if leader.as_ref().is_none_or(|b| c.scale < b.scale) {
             leader = Some(c);
         }
