@@ -185,8 +185,6 @@ struct Evaluator<'a> {
     shared_scale: Option<f64>,
     /// Robust fitted values of the richest model, projected onto each design as a warm start.
     anchor: Option<Vec<f64>>,
-    /// The richest model's point, fitted already for the shared scale, if it is also a grid point.
-    richest: std::sync::Mutex<Option<Evaluated>>,
 }
 
 struct Evaluated {
@@ -197,13 +195,6 @@ struct Evaluated {
 
 impl Evaluator<'_> {
     fn evaluate(&self, sizes: &[usize]) -> Result<Evaluated, SelectError> {
-        if let Ok(mut slot) = self.richest.lock() {
-            if slot.as_ref().is_some_and(|e| e.point.sizes == sizes) {
-                if let Some(e) = slot.take() {
-                    return Ok(e);
-                }
-            }
-        }
         let mut point =
             GridPoint { sizes: sizes.to_vec(), p: 0, bic: None, rbic: None, robust_termination: None, skipped: None };
         let t = crate::robust::profile::stage(|| format!("select: design {sizes:?}"));
@@ -265,24 +256,12 @@ impl Evaluator<'_> {
             Some(&classical.xtx_inverse),
         )
         .map_err(|e| SelectError::Fit(e, sizes.to_vec()))?;
-        Ok(self.scored(point, design, classical, robust, s_est))
-    }
-
-    /// The point's robust criterion and the evaluated point (its BIC is set already).
-    fn scored(
-        &self,
-        mut point: GridPoint,
-        design: Design,
-        classical: Fit,
-        robust: Fit,
-        s_est: Option<SEstimate>,
-    ) -> Evaluated {
         let loss = self.plan.method.loss();
         if robust.scale > 0.0 {
             point.rbic = Some(rbic(&robust.residuals, robust.scale, &|t| loss.rho(t), design.p, self.spec.penalty));
         }
         point.robust_termination = Some(robust.termination);
-        Evaluated { point, classical: Some((design, classical)), robust: Some((robust, s_est)) }
+        Ok(Evaluated { point, classical: Some((design, classical)), robust: Some((robust, s_est)) })
     }
 }
 
@@ -400,16 +379,7 @@ pub fn select_with_progress(
         spec.per_term.iter().map(|g| g.clone().unwrap_or_else(|| spec.shared.clone())).collect();
     // One sort per smooth column serves every design of the grid.
     let sorted = SortedColumns::new(frame, terms).map_err(SelectError::Design)?;
-    let mut ev = Evaluator {
-        frame,
-        terms,
-        spec,
-        plan,
-        sorted: &sorted,
-        shared_scale: None,
-        anchor: None,
-        richest: std::sync::Mutex::new(None),
-    };
+    let mut ev = Evaluator { frame, terms, spec, plan, sorted: &sorted, shared_scale: None, anchor: None };
 
     // The shared scale: S-estimate of the richest model that can be built (largest sizes first).
     let mut scale_source = Vec::new();
@@ -434,24 +404,6 @@ pub fn select_with_progress(
             ev.anchor = Some(mm.fitted.clone());
             scale_source = sizes.clone();
             s_richest = Some(s);
-            // When the richest model is a grid point its fits are those the grid needs (the same
-            // design, the shared scale, MM converged from the S start), so they are kept for it.
-            if candidates.contains(sizes)
-                || (search == SearchKind::CoordinateWise
-                    && sizes.windows(2).all(|w| w[0] == w[1])
-                    && spec.shared.contains(&sizes[0]))
-            {
-                let point = GridPoint {
-                    sizes: sizes.clone(),
-                    p: design.p,
-                    bic: Some(bic(classical.rss, design.n, design.p, spec.penalty)),
-                    rbic: None,
-                    robust_termination: None,
-                    skipped: None,
-                };
-                let e = ev.scored(point, design, classical, mm, None);
-                ev.richest = std::sync::Mutex::new(Some(e));
-            }
             break;
         }
         report(1);
