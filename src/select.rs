@@ -266,7 +266,7 @@ impl Evaluator<'_> {
 }
 
 /// Above this many rows, grid points are evaluated one at a time (see [`evaluate_in_waves`]).
-const WAVE_MAX_ROWS: usize = 200_000;
+pub const WAVE_MAX_ROWS: usize = 200_000;
 
 /// Evaluate independent grid points, as many at a time as there are worker threads (each point's
 /// kernels then run on its own thread; results are those of a sequential loop, see

@@ -262,7 +262,7 @@ pub fn analyse(
         let sorted = crate::design::SortedColumns::new(&sub_frame, terms);
         // Only the classical criterion is needed at each point, so only the residual sum of squares
         // is computed; the points are independent and run in parallel (results as in a sequential loop).
-        rerun_points = crate::linalg::map_tasks(grid_points.len(), |g| {
+        let evaluate = |g: usize| {
             let gp = &grid_points[g];
             let mut point = GridPoint {
                 sizes: gp.sizes.clone(),
@@ -287,7 +287,14 @@ pub fn analyse(
                 Err(_) => point.skipped = Some("basis impossible without the flagged rows".into()),
             }
             point
-        });
+        };
+        // Small designs run in parallel, one per thread; large ones one at a time (memory first, each
+        // already parallel over its rows). Results are the same either way.
+        rerun_points = if sub_frame.n_used() <= crate::select::WAVE_MAX_ROWS {
+            crate::linalg::map_tasks(grid_points.len(), evaluate)
+        } else {
+            (0..grid_points.len()).map(evaluate).collect()
+        };
         rerun_choice = rerun_points
             .iter()
             .enumerate()
