@@ -235,6 +235,48 @@ pub fn analyse(
     let mut rerun_points = Vec::new();
     let mut rerun_choice = None;
     if refit && !flagged.is_empty() && keep.len() > cd.p {
+        // The rerun first, in its own scope: its copy of the frame and its sorted columns are freed
+        // before the subset designs of the refits are built (one fewer design-sized block at the peak).
+        {
+            let _t = crate::robust::profile::stage(|| "sensitivity: rerun of the classical grid".into());
+            let sub_frame = frame_subset(frame, &keep);
+            let sorted = crate::design::SortedColumns::new(&sub_frame, terms);
+            // Only the classical criterion is needed at each point, so only the residual sum of squares
+            // is computed; the points are independent and run in parallel (results as in a sequential loop).
+            let evaluate = |g: usize| {
+                let gp = &grid_points[g];
+                let mut point = GridPoint {
+                    sizes: gp.sizes.clone(),
+                    p: 0,
+                    bic: None,
+                    rbic: None,
+                    robust_termination: None,
+                    skipped: None,
+                };
+                let built = sorted
+                    .as_ref()
+                    .map_err(|e| e.clone())
+                    .and_then(|sorted| crate::design::Design::build_sorted(&sub_frame, terms, &gp.sizes, sorted));
+                match built {
+                    Ok(d) => {
+                        point.p = d.p;
+                        match fit::classical_rss(&d) {
+                            Ok(rss) => point.bic = Some(select::bic(rss, d.n, d.p, penalty)),
+                            Err(_) => point.skipped = Some("rank deficient without the flagged rows".into()),
+                        }
+                    }
+                    Err(_) => point.skipped = Some("basis impossible without the flagged rows".into()),
+                }
+                point
+            };
+            // Small designs run in parallel, one per thread; large ones one at a time (memory first, each
+            // already parallel over its rows). Results are the same either way.
+            rerun_points = if sub_frame.n_used() <= crate::select::WAVE_MAX_ROWS {
+                crate::linalg::map_tasks(grid_points.len(), evaluate)
+            } else {
+                (0..grid_points.len()).map(evaluate).collect()
+            };
+        }
         let sub = cd.subset(&keep);
         if let Ok(f) = fit::classical(&sub) {
             classical_without = Some((sub, f));
@@ -257,44 +299,6 @@ pub fn analyse(
             robust_move = Some(mv);
             robust_without = Some(f);
         }
-        let _t = crate::robust::profile::stage(|| "sensitivity: rerun of the classical grid".into());
-        let sub_frame = frame_subset(frame, &keep);
-        let sorted = crate::design::SortedColumns::new(&sub_frame, terms);
-        // Only the classical criterion is needed at each point, so only the residual sum of squares
-        // is computed; the points are independent and run in parallel (results as in a sequential loop).
-        let evaluate = |g: usize| {
-            let gp = &grid_points[g];
-            let mut point = GridPoint {
-                sizes: gp.sizes.clone(),
-                p: 0,
-                bic: None,
-                rbic: None,
-                robust_termination: None,
-                skipped: None,
-            };
-            let built = sorted
-                .as_ref()
-                .map_err(|e| e.clone())
-                .and_then(|sorted| crate::design::Design::build_sorted(&sub_frame, terms, &gp.sizes, sorted));
-            match built {
-                Ok(d) => {
-                    point.p = d.p;
-                    match fit::classical_rss(&d) {
-                        Ok(rss) => point.bic = Some(select::bic(rss, d.n, d.p, penalty)),
-                        Err(_) => point.skipped = Some("rank deficient without the flagged rows".into()),
-                    }
-                }
-                Err(_) => point.skipped = Some("basis impossible without the flagged rows".into()),
-            }
-            point
-        };
-        // Small designs run in parallel, one per thread; large ones one at a time (memory first, each
-        // already parallel over its rows). Results are the same either way.
-        rerun_points = if sub_frame.n_used() <= crate::select::WAVE_MAX_ROWS {
-            crate::linalg::map_tasks(grid_points.len(), evaluate)
-        } else {
-            (0..grid_points.len()).map(evaluate).collect()
-        };
         rerun_choice = rerun_points
             .iter()
             .enumerate()
