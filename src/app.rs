@@ -69,15 +69,20 @@ pub enum FileContent<'a> {
 }
 
 impl RunOutputs {
-    /// The files of a run in manifest order ([`OUTPUT_FILES`]).
-    pub fn contents(&self) -> Vec<(&str, FileContent<'_>)> {
+    /// The files of a run in manifest order ([`OUTPUT_FILES`]); an error if one is missing (a bug, but
+    /// never a silently incomplete output folder).
+    pub fn contents(&self) -> Result<Vec<(&str, FileContent<'_>)>> {
         OUTPUT_FILES
             .iter()
-            .filter_map(|&name| {
+            .map(|&name| {
                 if name == "rows.csv" {
-                    return Some((name, FileContent::Rows(&self.analysis)));
+                    return Ok((name, FileContent::Rows(&self.analysis)));
                 }
-                self.files.iter().find(|(n, _)| n == name).map(|(_, b)| (name, FileContent::Bytes(b.as_slice())))
+                self.files
+                    .iter()
+                    .find(|(n, _)| n == name)
+                    .map(|(_, b)| (name, FileContent::Bytes(b.as_slice())))
+                    .ok_or_else(|| Error::new(format!("internal: the output {name} was not produced")))
             })
             .collect()
     }
@@ -203,7 +208,7 @@ fn run(spec_path: &Path, out: Option<&Path>, strict: bool, quiet: bool) -> Resul
     bar.finish_and_clear();
     let outputs = outputs?;
     let t = crate::robust::profile::stage(|| "write the outputs (rows.csv formatted on the way)".into());
-    write_outputs(&out_dir, &outputs.contents())?;
+    write_outputs(&out_dir, &outputs.contents()?)?;
     drop(t);
     let r = &outputs.results;
     let mut msg = format!(

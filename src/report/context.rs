@@ -1220,9 +1220,10 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
         id: "fig-7-1".into(),
         title: "Scaled robust residuals against fitted values".into(),
         desc: format!(
-            "Scaled robust residuals of {n} rows against the robust fitted values ({thin_words}), with dashed lines at ±{}; {} beyond them, marked with crosses{edge_words}.",
+            "Scaled robust residuals of {n} rows against the robust fitted values ({thin_words}), with dashed lines at ±{}; {} beyond them{}, marked with crosses{edge_words}.",
             short(cutoff),
-            plural(n_flagged, "row lies", "rows lie")
+            plural(n_flagged, "row lies", "rows lie"),
+            if plots::kept_step(flagged, MAX_POINTS) == 1 { String::new() } else { format!(" ({} of them shown)", shown.iter().filter(|&&i| flagged.get(i).copied().unwrap_or(false)).count()) }
         ),
         x_label: format!("robust fitted {}", a.study.response),
         y_label: "scaled robust residual".into(),

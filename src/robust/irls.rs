@@ -13,7 +13,9 @@
 use super::loss::Loss;
 use super::scale::mad_about_zero;
 use super::{check_data, exact_fit_threshold, RobustError};
-use crate::linalg::{least_squares_rows, newton_sweep, normal_solve_rows, residuals_rows, reweight, Dense, Rows};
+use crate::linalg::{
+    least_squares_rows, newton_sweep, normal_solve_rows, residuals_rows, reweight, Dense, LinalgError, Rows,
+};
 use crate::termination::Termination;
 
 /// Settings of an IRLS fit.
@@ -132,10 +134,12 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
         if irls_only == 0 {
             if let Some(step) = system.clone().cholesky() {
                 let next: Vec<f64> = last.iter().zip(&step).map(|(b, s)| b + s).collect();
-                let (sys, obj) = newton_sweep(x, y, &next, &terms, &mut r_new, &mut d_new)?;
-                // Rounding can raise Σρ by a few ulps at the minimum; that is not a failed step.
-                if obj <= objective + 1e-12 * objective.abs() {
-                    taken = Some((next, sys, obj));
+                // A step to non-finite residuals is a failed step like any other (IRLS is tried instead).
+                match newton_sweep(x, y, &next, &terms, &mut r_new, &mut d_new) {
+                    // Rounding can raise Σρ by a few ulps at the minimum; that is not a failed step.
+                    Ok((sys, obj)) if obj <= objective + 1e-12 * objective.abs() => taken = Some((next, sys, obj)),
+                    Ok(_) | Err(LinalgError::NonFinite) => {}
+                    Err(e) => return Err(e.into()),
                 }
             }
             if taken.is_none() {
