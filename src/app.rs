@@ -281,9 +281,7 @@ pub fn write_outputs(dir: &Path, files: &[(&str, FileContent<'_>)]) -> Result<()
                         let f = std::fs::File::create(&path)?;
                         let mut w = provenance::HashingWriter::new(std::io::BufWriter::with_capacity(1 << 20, f));
                         outputs::write_rows_csv(analysis, &mut w)?;
-                        let (buf, hex) = w.finish()?;
-                        drop(buf);
-                        Ok(hex)
+                        Ok(w.finish()?.1)
                     })();
                     written.map_err(|e| Error::io("write", &path, &e))?
                 }

@@ -1,7 +1,5 @@
 //! Assemble the machine-readable outputs (results.json, rows.csv) of an [`Analysis`] and its digest.
 
-use std::fmt::Write as _;
-
 use crate::analysis::Analysis;
 use crate::fit::{self, RobustMethod};
 use crate::provenance;
@@ -328,18 +326,10 @@ pub fn digest(results: &Results) -> String {
     provenance::sha256_hex(&bytes)
 }
 
-/// rows.csv: one row per used data row.
-pub fn rows_csv(a: &Analysis) -> String {
-    let mut out = Vec::new();
-    // Writing into memory cannot fail.
-    let _ = write_rows_csv(a, &mut out);
-    String::from_utf8(out).unwrap_or_default()
-}
-
 /// Row blocks formatted together before they are written (about 260 000 rows, some 50 MB of text).
 const ROWS_PER_WAVE_BLOCKS: usize = 64;
 
-/// rows.csv written to `out` as it is formatted, so the whole text never sits in memory: waves of row
+/// rows.csv (one row per used data row) written to `out` as it is formatted, so the whole text never sits in memory: waves of row
 /// blocks are formatted on the worker threads (one CSV writer per block, so quoting is the writer's
 /// own) and written in block order, the same bytes for any thread count.
 pub fn write_rows_csv(a: &Analysis, out: &mut dyn std::io::Write) -> std::io::Result<()> {
@@ -375,9 +365,7 @@ pub fn write_rows_csv(a: &Analysis, out: &mut dyn std::io::Write) -> std::io::Re
             let mut buf = String::new();
             let mut field = |w: &mut csv::Writer<Vec<u8>>, v: f64| {
                 buf.clear();
-                if v.is_finite() {
-                    let _ = write!(buf, "{v}");
-                }
+                num_into(&mut buf, v);
                 let _ = w.write_field(buf.as_bytes());
             };
             for i in wave_lo + lo..wave_lo + hi {

@@ -266,7 +266,14 @@ impl Evaluator<'_> {
 }
 
 /// Above this many rows, grid points are evaluated one at a time (see [`evaluate_in_waves`]).
-pub const WAVE_MAX_ROWS: usize = 200_000;
+const WAVE_MAX_ROWS: usize = 200_000;
+
+/// Whether independent grid points on designs of `rows` rows run in parallel, one per thread. Large
+/// designs run one at a time (each already parallel over its rows): memory first. Results are the
+/// same either way.
+pub fn points_in_parallel(rows: usize) -> bool {
+    rows <= WAVE_MAX_ROWS
+}
 
 /// Evaluate independent grid points, as many at a time as there are worker threads (each point's
 /// kernels then run on its own thread; results are those of a sequential loop, see
@@ -278,8 +285,7 @@ fn evaluate_in_waves(
     kept: &mut Keeper,
     report: &dyn Fn(usize),
 ) -> Result<(), SelectError> {
-    // Large designs are evaluated one at a time (each already parallel over its rows): memory first.
-    let width = if ev.frame.n_used() <= WAVE_MAX_ROWS { crate::linalg::threads().max(1) } else { 1 };
+    let width = if points_in_parallel(ev.frame.n_used()) { crate::linalg::threads().max(1) } else { 1 };
     for wave in points.chunks(width) {
         for e in crate::linalg::map_tasks(wave.len(), |i| ev.evaluate(&wave[i])) {
             kept.add(e?);

@@ -242,7 +242,7 @@ pub fn analyse(
             let sub_frame = frame_subset(frame, &keep);
             let sorted = crate::design::SortedColumns::new(&sub_frame, terms);
             // Only the classical criterion is needed at each point, so only the residual sum of squares
-            // is computed; the points are independent and run in parallel (results as in a sequential loop).
+            // is computed; the points are independent (see `select::points_in_parallel`).
             let evaluate = |g: usize| {
                 let gp = &grid_points[g];
                 let mut point = GridPoint {
@@ -269,9 +269,7 @@ pub fn analyse(
                 }
                 point
             };
-            // Small designs run in parallel, one per thread; large ones one at a time (memory first, each
-            // already parallel over its rows). Results are the same either way.
-            rerun_points = if sub_frame.n_used() <= crate::select::WAVE_MAX_ROWS {
+            rerun_points = if select::points_in_parallel(sub_frame.n_used()) {
                 crate::linalg::map_tasks(grid_points.len(), evaluate)
             } else {
                 (0..grid_points.len()).map(evaluate).collect()

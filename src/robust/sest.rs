@@ -240,20 +240,7 @@ pub fn s_estimate_rows<R: Rows + ?Sized>(x: &R, y: &[f64], opts: &SOptions) -> R
         // and the MM step refines the coefficients on all rows.
         let loose = SOptions { tol: opts.tol.max(1e-3), ..opts.clone() };
         let tight = SOptions { tol: opts.tol.max(SUBSET_TOL), ..opts.clone() };
-        // The candidates race independently, one per worker thread (each computed as on one thread, so
-        // the winner does not depend on the thread count); the first of equal scales wins, as in order.
-        let raced = crate::linalg::map_tasks(best.len(), |k| {
-            iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, best[k].clone(), &loose, tiny)
-        });
-        let mut leader: Option<Candidate> = None;
-        for (c, t) in raced {
-            if super::profile::enabled() {
-                eprintln!("knotwise-profile: s race {t:?} scale {}", c.scale);
-            }
-            if leader.as_ref().is_none_or(|b| c.scale < b.scale) {
-                leader = Some(c);
-            }
-        }
+        let leader = race(&Dense::new(&xs, ns, p), &ys, &best, &loose, tiny);
         let on_subset = leader.map(|c| iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, c, &tight, tiny));
         drop(xs);
         drop(ys);
@@ -286,15 +273,7 @@ pub fn s_estimate_rows<R: Rows + ?Sized>(x: &R, y: &[f64], opts: &SOptions) -> R
     }
     // The kept candidates race to a loose tolerance; only the winner is iterated to the full one.
     let loose = SOptions { tol: opts.tol.max(1e-6), ..opts.clone() };
-    let raced = crate::linalg::map_tasks(best.len(), |k| {
-        iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, best[k].clone(), &loose, tiny)
-    });
-    let mut leader: Option<Candidate> = None;
-    for (c, _) in raced {
-        if leader.as_ref().is_none_or(|b| c.scale < b.scale) {
-            leader = Some(c);
-        }
-    }
+    let leader = race(&Dense::new(&xs, ns, p), &ys, &best, &loose, tiny);
     let Some(leader) = leader else { return Err(RobustError::AllSubsamplesSingular { tried: attempts }) };
     let _t = super::profile::stage(|| "s-estimate final iteration of the winner".into());
     let (c, termination) = iterate_to_convergence(&Dense::new(&xs, ns, p), &ys, leader, opts, tiny);
@@ -310,6 +289,23 @@ pub fn s_estimate_rows<R: Rows + ?Sized>(x: &R, y: &[f64], opts: &SOptions) -> R
         singular_redraws: singular,
         search_rows: ns,
     })
+}
+
+/// The kept candidates iterated to `opts.tol`, independently and one per worker thread (each computed
+/// as on one thread, so the result does not depend on the thread count); the one of smallest scale
+/// wins, the first of equal scales as in a sequential loop.
+fn race(x: &Dense<'_>, y: &[f64], best: &[Candidate], opts: &SOptions, tiny: f64) -> Option<Candidate> {
+    let raced = crate::linalg::map_tasks(best.len(), |k| iterate_to_convergence(x, y, best[k].clone(), opts, tiny));
+    let mut leader: Option<Candidate> = None;
+    for (c, t) in raced {
+        if super::profile::enabled() {
+            eprintln!("knotwise-profile: s race {t:?} scale {}", c.scale);
+        }
+        if leader.as_ref().is_none_or(|b| c.scale < b.scale) {
+            leader = Some(c);
+        }
+    }
+    leader
 }
 
 /// Tolerance of the winner's final iteration when the search ran on a subset (see `s_estimate_rows`).
