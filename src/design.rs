@@ -179,10 +179,16 @@ enum Store {
     /// A categorical term: per row the design column of its dummy, or `NO_DUMMY`.
     Categorical { cols: Vec<u32> },
     /// A smooth term: design columns start..start + m, per row the first basis index and the values.
-    Smooth { start: usize, m: usize, width: usize, first: Vec<u32>, values: Vec<f64> },
+    /// `span` bounds the columns the rows reach, kept or not (first + width ≤ span, m ≤ span).
+    Smooth { start: usize, m: usize, width: usize, span: usize, first: Vec<u32>, values: Vec<f64> },
 }
 
-const NO_DUMMY: u32 = u32::MAX;
+/// The columns a smooth store's rows reach, kept or not: the largest first index + width (at least m).
+fn smooth_span(m: usize, width: usize, first: &[u32]) -> usize {
+    first.iter().fold(m, |s, &f| s.max(f as usize + width))
+}
+
+const NO_DUMMY: u32 = linalg::NO_COLUMN;
 
 /// The model's design with its response and bookkeeping, stored compactly (see [`Store`]).
 #[derive(Debug, Clone)]
@@ -306,7 +312,8 @@ impl Design {
                 Some(r) => std::mem::take(r),
                 None => basis_rows(&enc.basis, xs, if whole { None } else { Some(rows) }),
             };
-            store.push(Store::Smooth { start, m, width, first, values });
+            let span = smooth_span(m, width, &first);
+            store.push(Store::Smooth { start, m, width, span, first, values });
         }
         let p = names.len();
         let y = rows.iter().map(|&i| y_all[i]).collect();
@@ -369,10 +376,11 @@ impl Design {
                     Store::Numeric { col: *col, values: keep.iter().map(|&i| values[i]).collect() }
                 }
                 Store::Categorical { cols } => Store::Categorical { cols: keep.iter().map(|&i| cols[i]).collect() },
-                Store::Smooth { start, m, width, first, values } => Store::Smooth {
+                Store::Smooth { start, m, width, span, first, values } => Store::Smooth {
                     start: *start,
                     m: *m,
                     width: *width,
+                    span: *span,
                     first: keep.iter().map(|&i| first[i]).collect(),
                     values: keep.iter().flat_map(|&i| values[i * width..(i + 1) * width].iter().copied()).collect(),
                 },
@@ -410,7 +418,7 @@ impl Rows for Design {
                         *o = 1.0;
                     }
                 }
-                Store::Smooth { start, m, width, first, values } => {
+                Store::Smooth { start, m, width, first, values, .. } => {
                     let f = first[i] as usize;
                     for (j, v) in values[i * width..(i + 1) * width].iter().enumerate() {
                         if f + j < *m {
@@ -430,6 +438,30 @@ impl Rows for Design {
     }
     fn baseline(&self, _lo: usize, _hi: usize) -> Vec<f64> {
         self.baseline.clone()
+    }
+    fn layout(&self) -> Option<linalg::Layout<'_>> {
+        let mut layout = linalg::Layout { singles: Vec::new(), singles_end: 1, runs: Vec::new() };
+        for (s, span) in self.store.iter().zip(&self.spans[1..]) {
+            match s {
+                Store::Numeric { col, values } => {
+                    layout.singles.push(linalg::Single::Value { col: *col, values });
+                }
+                Store::Categorical { cols } => layout.singles.push(linalg::Single::Indicator { cols }),
+                Store::Smooth { start, m, width, span, first, values } => {
+                    if *width != linalg::RUN_WIDTH {
+                        return None;
+                    }
+                    layout.runs.push(linalg::Run { start: *start, kept: *m, span: *span, first, values });
+                }
+            }
+            if !layout.runs.is_empty() && !matches!(s, Store::Smooth { .. }) {
+                return None;
+            }
+            if layout.runs.is_empty() {
+                layout.singles_end = span.start + span.len;
+            }
+        }
+        Some(layout)
     }
     fn deviation(&self, i: usize, c: &[f64], idx: &mut [usize], val: &mut [f64]) -> usize {
         // The kernels pass back the baseline this design gave them; the entries below are x_i − c for
@@ -451,7 +483,7 @@ impl Rows for Design {
                         m += 1;
                     }
                 }
-                Store::Smooth { start, m: width_cols, width, first, values } => {
+                Store::Smooth { start, m: width_cols, width, first, values, .. } => {
                     // The row's basis values that fall on kept columns: the first `len` of them.
                     let f = first[i] as usize;
                     let len = (*width).min(width_cols.saturating_sub(f));

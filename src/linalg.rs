@@ -197,12 +197,26 @@ pub trait Rows: Sync {
     /// The entries of d_i = x_i − c that may be non-zero, in ascending column order, into `idx` and
     /// `val` (each at least p long); returns how many.
     fn deviation(&self, i: usize, c: &[f64], idx: &mut [usize], val: &mut [f64]) -> usize;
+    /// The rows' fixed layout, when they have one the blocked kernels read directly (a speed path:
+    /// the results are the same bit for bit as through [`Rows::deviation`]). The layout's entries must
+    /// be exactly the non-zero entries of [`Rows::deviation`] for the baseline of [`Rows::baseline`].
+    fn layout(&self) -> Option<Layout<'_>> {
+        None
+    }
     /// x_i'b for the rows lo..lo + out.len(), into `out`.
     fn dot_rows(&self, lo: usize, coef: &[f64], out: &mut [f64]) {
         let p = self.p();
         let hi = lo + out.len();
         let c = self.baseline(lo, hi);
         let cb = dot(&c, coef);
+        if let Some((layout, pad)) = blocked_layout(self) {
+            let mut row = RowView::new();
+            for (k, o) in out.iter_mut().enumerate() {
+                row.read(&layout, &pad, lo + k);
+                *o = row.dot(cb, coef);
+            }
+            return;
+        }
         let mut idx = vec![0usize; p];
         let mut val = vec![0.0; p];
         for (k, o) in out.iter_mut().enumerate() {
@@ -210,6 +224,51 @@ pub trait Rows: Sync {
             *o = sparse_dot(cb, &idx[..m], &val[..m], coef);
         }
     }
+}
+
+mod blocked;
+use blocked::{BlockedAcc, Padding, RowView};
+
+/// Width of a [`Run`]: the non-zero values of a cubic B-spline basis at a point.
+pub const RUN_WIDTH: usize = 4;
+
+/// "No entry" in a [`Single::Indicator`] row.
+pub const NO_COLUMN: u32 = u32::MAX;
+
+/// A per-row single entry of a [`Layout`].
+pub enum Single<'a> {
+    /// A value in column `col` on every row.
+    Value { col: usize, values: &'a [f64] },
+    /// A 1 in column `cols[i]` of row i, or nothing when it is [`NO_COLUMN`].
+    Indicator { cols: &'a [u32] },
+}
+
+/// A per-row run of [`RUN_WIDTH`] values in consecutive columns `start + first[i] ..`, of which only
+/// those on the `kept` columns start..start + kept belong to the matrix. `span` bounds the run:
+/// first[i] + RUN_WIDTH ≤ span for every row, and kept ≤ span.
+pub struct Run<'a> {
+    pub start: usize,
+    pub kept: usize,
+    pub span: usize,
+    pub first: &'a [u32],
+    /// RUN_WIDTH values per row.
+    pub values: &'a [f64],
+}
+
+/// The fixed row layout of a design as the blocked kernels read it: row i minus the baseline is the
+/// single entries (all in columns below `singles_end`, ascending) followed by the runs (ascending,
+/// each at or after the previous one's kept columns).
+pub struct Layout<'a> {
+    pub singles: Vec<Single<'a>>,
+    pub singles_end: usize,
+    pub runs: Vec<Run<'a>>,
+}
+
+/// The layout of `x` with its padding, when the blocked kernels can take it.
+fn blocked_layout<R: Rows + ?Sized>(x: &R) -> Option<(Layout<'_>, Padding)> {
+    let layout = x.layout()?;
+    let pad = Padding::new(&layout, x.p())?;
+    Some((layout, pad))
 }
 
 /// A dense row-major n × p matrix.
@@ -708,6 +767,19 @@ fn xtwx_block<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64], lo: usize, hi: usiz
         return (vec![0.0; p * (p + 1)], false);
     }
     let c = x.baseline(lo, hi);
+    if let Some((layout, pad)) = blocked_layout(x) {
+        let mut acc = BlockedAcc::new(&pad);
+        let mut row = RowView::new();
+        for i in lo..hi {
+            let wi = w[i];
+            if wi == 0.0 {
+                continue;
+            }
+            row.read(&layout, &pad, i);
+            acc.add(wi, wi * y[i], &row);
+        }
+        return (acc.finish(&pad, &c), true);
+    }
     let mut acc = NormalAcc::new(p);
     let mut idx = vec![0usize; p];
     let mut val = vec![0.0; p];
@@ -786,6 +858,11 @@ pub struct NormalEquations {
 }
 
 impl NormalEquations {
+    /// The upper triangle of [A | b], p × (p + 1) row-major (entries below the diagonal are zero).
+    pub fn entries(&self) -> &[f64] {
+        &self.a
+    }
+
     /// The Cholesky solution alone: None when the matrix is not safely positive definite.
     pub fn cholesky(mut self) -> Option<Vec<f64>> {
         cholesky_solve(&mut self.a, self.p).filter(|c| c.iter().all(|v| v.is_finite()))
@@ -867,10 +944,30 @@ fn sweep<R: Rows + ?Sized>(
         }
         let c = x.baseline(lo, hi);
         let cb = dot(&c, coef);
+        let mut objective = 0.0;
+        if let Some((layout, pad)) = blocked_layout(x) {
+            let mut acc = BlockedAcc::new(&pad);
+            let mut row = RowView::new();
+            for (k, (rk, dk)) in r.iter_mut().zip(d.iter_mut()).enumerate() {
+                let i = lo + k;
+                row.read(&layout, &pad, i);
+                let ri = y[i] - row.dot(cb, coef);
+                if !ri.is_finite() {
+                    return None;
+                }
+                let (di, gi, obj) = terms(ri, y[i])?;
+                *rk = ri;
+                *dk = di;
+                objective += obj;
+                if di != 0.0 || gi != 0.0 {
+                    acc.add(di, gi, &row);
+                }
+            }
+            return Some((acc.finish(&pad, &c), objective));
+        }
         let mut acc = NormalAcc::new(p);
         let mut idx = vec![0usize; p];
         let mut val = vec![0.0; p];
-        let mut objective = 0.0;
         for (k, (rk, dk)) in r.iter_mut().zip(d.iter_mut()).enumerate() {
             let i = lo + k;
             let m = x.deviation(i, &c, &mut idx, &mut val);
@@ -1059,6 +1156,22 @@ fn xtw_residual<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64], coef: &[f64]) -> 
         let cb = dot(&c, coef);
         let mut acc = vec![0.0; p];
         let mut sum = 0.0;
+        if let Some((layout, pad)) = blocked_layout(x) {
+            let mut row = RowView::new();
+            for i in lo..hi {
+                if w[i] == 0.0 {
+                    continue;
+                }
+                row.read(&layout, &pad, i);
+                let wr = w[i] * (y[i] - row.dot(cb, coef));
+                sum += wr;
+                row.for_each(|j, v| acc[j] += v * wr);
+            }
+            for (a, cj) in acc.iter_mut().zip(&c) {
+                *a += cj * sum;
+            }
+            return acc;
+        }
         let mut idx = vec![0usize; p];
         let mut val = vec![0.0; p];
         for i in lo..hi {
