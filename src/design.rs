@@ -204,6 +204,9 @@ pub struct Design {
     store: Vec<Store>,
     /// The baseline row c (see [`Store`]).
     baseline: Vec<f64>,
+    /// Whether every stored value is finite (checked once when the design is built; the store is never
+    /// changed afterwards), so that the kernels' finiteness test is free.
+    all_finite: bool,
 }
 
 impl Design {
@@ -318,7 +321,18 @@ impl Design {
         let p = names.len();
         let y = rows.iter().map(|&i| y_all[i]).collect();
         let sizes = encodings.iter().map(|e| e.basis.size()).collect();
-        Ok(Design { n, p, y, names, spans, smooth: encodings, sizes, store, baseline })
+        let mut design = Design { n, p, y, names, spans, smooth: encodings, sizes, store, baseline, all_finite: false };
+        design.all_finite = design.store_finite(0, n);
+        Ok(design)
+    }
+
+    /// Whether every stored entry of rows lo..hi (and the baseline) is finite.
+    fn store_finite(&self, lo: usize, hi: usize) -> bool {
+        self.store.iter().all(|s| match s {
+            Store::Numeric { values, .. } => values[lo..hi].iter().all(|v| v.is_finite()),
+            Store::Categorical { .. } => true,
+            Store::Smooth { width, values, .. } => values[lo * width..hi * width].iter().all(|v| v.is_finite()),
+        }) && self.baseline.iter().all(|v| v.is_finite())
     }
 
     /// The span of smooth term `j` (in `smooth` order).
@@ -396,6 +410,8 @@ impl Design {
             sizes: self.sizes.clone(),
             store,
             baseline: self.baseline.clone(),
+            // A subset of finite rows is finite; otherwise its rows are checked when used.
+            all_finite: self.all_finite,
         }
     }
 }
@@ -430,11 +446,7 @@ impl Rows for Design {
         }
     }
     fn finite(&self, lo: usize, hi: usize) -> bool {
-        self.store.iter().all(|s| match s {
-            Store::Numeric { values, .. } => values[lo..hi].iter().all(|v| v.is_finite()),
-            Store::Categorical { .. } => true,
-            Store::Smooth { width, values, .. } => values[lo * width..hi * width].iter().all(|v| v.is_finite()),
-        }) && self.baseline.iter().all(|v| v.is_finite())
+        self.all_finite || self.store_finite(lo, hi)
     }
     fn baseline(&self, _lo: usize, _hi: usize) -> Vec<f64> {
         self.baseline.clone()

@@ -210,12 +210,7 @@ pub trait Rows: Sync {
         let c = self.baseline(lo, hi);
         let cb = dot(&c, coef);
         if let Some((layout, pad)) = blocked_layout(self) {
-            let mut row = RowView::new();
-            for (k, o) in out.iter_mut().enumerate() {
-                row.read(&layout, &pad, lo + k);
-                *o = row.dot(cb, coef);
-            }
-            return;
+            return blocked::dot_block(&layout, &pad, coef, lo, out, &c);
         }
         let mut idx = vec![0usize; p];
         let mut val = vec![0.0; p];
@@ -227,7 +222,7 @@ pub trait Rows: Sync {
 }
 
 mod blocked;
-use blocked::{BlockedAcc, Padding, RowView};
+use blocked::Padding;
 
 /// Width of a [`Run`]: the non-zero values of a cubic B-spline basis at a point.
 pub const RUN_WIDTH: usize = 4;
@@ -768,17 +763,7 @@ fn xtwx_block<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64], lo: usize, hi: usiz
     }
     let c = x.baseline(lo, hi);
     if let Some((layout, pad)) = blocked_layout(x) {
-        let mut acc = BlockedAcc::new(&pad);
-        let mut row = RowView::new();
-        for i in lo..hi {
-            let wi = w[i];
-            if wi == 0.0 {
-                continue;
-            }
-            row.read(&layout, &pad, i);
-            acc.add(wi, wi * y[i], &row);
-        }
-        return (acc.finish(&pad, &c), true);
+        return (blocked::normal_block(&layout, &pad, y, w, lo, hi, &c), true);
     }
     let mut acc = NormalAcc::new(p);
     let mut idx = vec![0usize; p];
@@ -946,24 +931,7 @@ fn sweep<R: Rows + ?Sized>(
         let cb = dot(&c, coef);
         let mut objective = 0.0;
         if let Some((layout, pad)) = blocked_layout(x) {
-            let mut acc = BlockedAcc::new(&pad);
-            let mut row = RowView::new();
-            for (k, (rk, dk)) in r.iter_mut().zip(d.iter_mut()).enumerate() {
-                let i = lo + k;
-                row.read(&layout, &pad, i);
-                let ri = y[i] - row.dot(cb, coef);
-                if !ri.is_finite() {
-                    return None;
-                }
-                let (di, gi, obj) = terms(ri, y[i])?;
-                *rk = ri;
-                *dk = di;
-                objective += obj;
-                if di != 0.0 || gi != 0.0 {
-                    acc.add(di, gi, &row);
-                }
-            }
-            return Some((acc.finish(&pad, &c), objective));
+            return blocked::sweep_block(&layout, &pad, y, coef, terms, lo, r, d, &c);
         }
         let mut acc = NormalAcc::new(p);
         let mut idx = vec![0usize; p];
@@ -1157,20 +1125,7 @@ fn xtw_residual<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64], coef: &[f64]) -> 
         let mut acc = vec![0.0; p];
         let mut sum = 0.0;
         if let Some((layout, pad)) = blocked_layout(x) {
-            let mut row = RowView::new();
-            for i in lo..hi {
-                if w[i] == 0.0 {
-                    continue;
-                }
-                row.read(&layout, &pad, i);
-                let wr = w[i] * (y[i] - row.dot(cb, coef));
-                sum += wr;
-                row.for_each(|j, v| acc[j] += v * wr);
-            }
-            for (a, cj) in acc.iter_mut().zip(&c) {
-                *a += cj * sum;
-            }
-            return acc;
+            return blocked::residual_block(&layout, &pad, y, w, coef, lo, hi, &c);
         }
         let mut idx = vec![0usize; p];
         let mut val = vec![0.0; p];

@@ -223,14 +223,16 @@ fn write_large_study(dir: &Path) -> PathBuf {
 }
 
 #[test]
-fn thread_count_does_not_change_a_byte() {
+fn thread_count_and_simd_do_not_change_a_byte() {
     let d = scratch("threads");
     let spec = write_large_study(&d);
     let s = spec.to_str().unwrap();
-    for (threads, out) in [("1", "t1"), ("2", "t2"), ("3", "t3")] {
+    // t3 also runs the kernels without their AVX2 copies (KNOTWISE_SIMD=0; a no-op on other CPUs).
+    for (threads, simd, out) in [("1", "1", "t1"), ("2", "1", "t2"), ("3", "0", "t3")] {
         let o = Command::new(env!("CARGO_BIN_EXE_knotwise"))
             .args(["run", s, "--out", out])
             .env("KNOTWISE_THREADS", threads)
+            .env("KNOTWISE_SIMD", simd)
             .current_dir(&d)
             .output()
             .unwrap();
@@ -238,7 +240,7 @@ fn thread_count_does_not_change_a_byte() {
     }
     for f in ["report.html", "results.json", "rows.csv"] {
         assert_eq!(read(&d.join("t1").join(f)), read(&d.join("t2").join(f)), "{f}: 1 vs 2 threads");
-        assert_eq!(read(&d.join("t1").join(f)), read(&d.join("t3").join(f)), "{f}: 1 vs 3 threads");
+        assert_eq!(read(&d.join("t1").join(f)), read(&d.join("t3").join(f)), "{f}: 1 vs 3 threads without SIMD");
     }
     let _ = std::fs::remove_dir_all(&d);
 }

@@ -12,6 +12,9 @@
 
 use super::{Layout, Single, RUN_WIDTH};
 
+// The unrolled run in `RowView::dot` and the fixed strips assume cubic runs.
+const _: () = assert!(RUN_WIDTH == 4);
+
 /// Largest number of single entries and of runs per row the kernels take (more: the generic path).
 const MAX_PARTS: usize = 16;
 
@@ -73,7 +76,7 @@ impl RowView {
     }
 
     /// Read row i of `layout` (padded as `pad`).
-    #[inline]
+    #[inline(always)]
     pub(super) fn read(&mut self, layout: &Layout<'_>, pad: &Padding, i: usize) {
         let mut ns = 0;
         for s in &layout.singles {
@@ -102,15 +105,23 @@ impl RowView {
     }
 
     /// c'b + Σ x_ij b_j over the row's entries in ascending column order (as [`super::sparse_dot`]).
-    #[inline]
+    #[inline(always)]
     pub(super) fn dot(&self, cb: f64, coef: &[f64]) -> f64 {
         let mut s = cb;
         for &(j, v) in &self.singles[..self.ns] {
             s += v * coef[j];
         }
         for &(c0, len, _, v) in &self.runs[..self.nr] {
-            for (vk, ck) in v[..len].iter().zip(&coef[c0..c0 + len]) {
-                s += vk * ck;
+            // A whole run (most rows) unrolled; the same additions in the same order either way.
+            if let (RUN_WIDTH, Some(c)) = (len, coef.get(c0..c0 + RUN_WIDTH)) {
+                s += v[0] * c[0];
+                s += v[1] * c[1];
+                s += v[2] * c[2];
+                s += v[3] * c[3];
+            } else {
+                for (vk, ck) in v[..len].iter().zip(&coef[c0..c0 + len]) {
+                    s += vk * ck;
+                }
             }
         }
         s
@@ -149,7 +160,7 @@ impl BlockedAcc {
     /// Add a row with matrix weight `wi` and right-hand-side multiplier `wy` (as
     /// [`super::NormalAcc::add_general`]: entry (a, b), a ≤ b, gets (wi·v_a)·v_b; the right-hand side
     /// v_a·wy).
-    #[inline]
+    #[inline(always)]
     pub(super) fn add(&mut self, wi: f64, wy: f64, row: &RowView) {
         let width = self.padded + 1;
         let q = self.padded;
@@ -214,3 +225,209 @@ fn strip(dst: &mut [f64], wd: f64, v: &[f64; RUN_WIDTH]) {
         }
     }
 }
+
+// The row loops of the parent module's kernels on a layout. Each is compiled twice, for the baseline
+// target and with AVX2 (chosen at run time): element-wise IEEE multiplications and additions give the
+// same bits in either instruction set and no operation is fused or reordered (Rust never contracts
+// a·b + c into an FMA), so the choice changes speed only.
+
+/// Runs `$body` (a call of an `#[inline(always)]` function) compiled with AVX2 when the CPU has it.
+macro_rules! with_simd {
+    ($avx2:ident, $plain:ident, ($($arg:ident: $ty:ty),*) -> $ret:ty) => {
+        #[cfg(target_arch = "x86_64")]
+        #[target_feature(enable = "avx2")]
+        #[allow(clippy::too_many_arguments)]
+        fn $avx2($($arg: $ty),*) -> $ret {
+            $plain($($arg),*)
+        }
+    };
+}
+
+/// Whether the AVX2 copies may run (detected once; `KNOTWISE_SIMD=0` turns them off, for checks).
+fn avx2() -> bool {
+    #[cfg(target_arch = "x86_64")]
+    {
+        static ON: std::sync::OnceLock<bool> = std::sync::OnceLock::new();
+        *ON.get_or_init(|| {
+            std::arch::is_x86_feature_detected!("avx2") && std::env::var("KNOTWISE_SIMD").map_or(true, |v| v != "0")
+        })
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    false
+}
+
+/// Upper triangle of [X'WX | X'Wy] over rows lo..hi with baseline `c` (rows of zero weight skipped).
+pub(super) fn normal_block(
+    layout: &Layout<'_>,
+    pad: &Padding,
+    y: &[f64],
+    w: &[f64],
+    lo: usize,
+    hi: usize,
+    c: &[f64],
+) -> Vec<f64> {
+    #[cfg(target_arch = "x86_64")]
+    if avx2() {
+        // SAFETY: the CPU supports AVX2 (checked by `avx2`); the copy differs in instruction selection only.
+        return unsafe { normal_block_avx2(layout, pad, y, w, lo, hi, c) };
+    }
+    normal_block_plain(layout, pad, y, w, lo, hi, c)
+}
+
+#[inline(always)]
+fn normal_block_plain(
+    layout: &Layout<'_>,
+    pad: &Padding,
+    y: &[f64],
+    w: &[f64],
+    lo: usize,
+    hi: usize,
+    c: &[f64],
+) -> Vec<f64> {
+    let mut acc = BlockedAcc::new(pad);
+    let mut row = RowView::new();
+    for i in lo..hi {
+        let wi = w[i];
+        if wi == 0.0 {
+            continue;
+        }
+        row.read(layout, pad, i);
+        acc.add(wi, wi * y[i], &row);
+    }
+    acc.finish(pad, c)
+}
+with_simd!(normal_block_avx2, normal_block_plain, (layout: &Layout<'_>, pad: &Padding, y: &[f64], w: &[f64], lo: usize, hi: usize, c: &[f64]) -> Vec<f64>);
+
+/// The terms of one row for [`sweep_block`]: (matrix weight, right-hand-side multiplier, objective).
+pub(super) type Terms<'t> = dyn Fn(f64, f64) -> Option<(f64, f64, f64)> + Sync + 't;
+
+/// One block of the parent's `sweep`: residuals into `r`, matrix weights into `d`, and the block's
+/// [Σ d x x' | Σ g x] with its summed objective; None on an unusable value.
+#[allow(clippy::too_many_arguments)]
+pub(super) fn sweep_block(
+    layout: &Layout<'_>,
+    pad: &Padding,
+    y: &[f64],
+    coef: &[f64],
+    terms: &Terms<'_>,
+    lo: usize,
+    r: &mut [f64],
+    d: &mut [f64],
+    c: &[f64],
+) -> Option<(Vec<f64>, f64)> {
+    #[cfg(target_arch = "x86_64")]
+    if avx2() {
+        // SAFETY: as in `normal_block`.
+        return unsafe { sweep_block_avx2(layout, pad, y, coef, terms, lo, r, d, c) };
+    }
+    sweep_block_plain(layout, pad, y, coef, terms, lo, r, d, c)
+}
+
+#[allow(clippy::too_many_arguments)]
+#[inline(always)]
+fn sweep_block_plain(
+    layout: &Layout<'_>,
+    pad: &Padding,
+    y: &[f64],
+    coef: &[f64],
+    terms: &Terms<'_>,
+    lo: usize,
+    r: &mut [f64],
+    d: &mut [f64],
+    c: &[f64],
+) -> Option<(Vec<f64>, f64)> {
+    let cb = super::dot(c, coef);
+    let mut objective = 0.0;
+    let mut acc = BlockedAcc::new(pad);
+    let mut row = RowView::new();
+    for (k, (rk, dk)) in r.iter_mut().zip(d.iter_mut()).enumerate() {
+        let i = lo + k;
+        row.read(layout, pad, i);
+        let ri = y[i] - row.dot(cb, coef);
+        if !ri.is_finite() {
+            return None;
+        }
+        let (di, gi, obj) = terms(ri, y[i])?;
+        *rk = ri;
+        *dk = di;
+        objective += obj;
+        if di != 0.0 || gi != 0.0 {
+            acc.add(di, gi, &row);
+        }
+    }
+    Some((acc.finish(pad, c), objective))
+}
+with_simd!(sweep_block_avx2, sweep_block_plain, (layout: &Layout<'_>, pad: &Padding, y: &[f64], coef: &[f64], terms: &Terms<'_>, lo: usize, r: &mut [f64], d: &mut [f64], c: &[f64]) -> Option<(Vec<f64>, f64)>);
+
+/// X'W(y − Xb) over rows lo..hi with baseline `c` (rows of zero weight skipped).
+#[allow(clippy::too_many_arguments)]
+pub(super) fn residual_block(
+    layout: &Layout<'_>,
+    pad: &Padding,
+    y: &[f64],
+    w: &[f64],
+    coef: &[f64],
+    lo: usize,
+    hi: usize,
+    c: &[f64],
+) -> Vec<f64> {
+    #[cfg(target_arch = "x86_64")]
+    if avx2() {
+        // SAFETY: as in `normal_block`.
+        return unsafe { residual_block_avx2(layout, pad, y, w, coef, lo, hi, c) };
+    }
+    residual_block_plain(layout, pad, y, w, coef, lo, hi, c)
+}
+
+#[allow(clippy::too_many_arguments)]
+#[inline(always)]
+fn residual_block_plain(
+    layout: &Layout<'_>,
+    pad: &Padding,
+    y: &[f64],
+    w: &[f64],
+    coef: &[f64],
+    lo: usize,
+    hi: usize,
+    c: &[f64],
+) -> Vec<f64> {
+    let cb = super::dot(c, coef);
+    let mut acc = vec![0.0; c.len()];
+    let mut sum = 0.0;
+    let mut row = RowView::new();
+    for i in lo..hi {
+        if w[i] == 0.0 {
+            continue;
+        }
+        row.read(layout, pad, i);
+        let wr = w[i] * (y[i] - row.dot(cb, coef));
+        sum += wr;
+        row.for_each(|j, v| acc[j] += v * wr);
+    }
+    for (a, cj) in acc.iter_mut().zip(c) {
+        *a += cj * sum;
+    }
+    acc
+}
+with_simd!(residual_block_avx2, residual_block_plain, (layout: &Layout<'_>, pad: &Padding, y: &[f64], w: &[f64], coef: &[f64], lo: usize, hi: usize, c: &[f64]) -> Vec<f64>);
+
+/// x_i'b for rows lo..lo + out.len() with baseline `c`.
+pub(super) fn dot_block(layout: &Layout<'_>, pad: &Padding, coef: &[f64], lo: usize, out: &mut [f64], c: &[f64]) {
+    #[cfg(target_arch = "x86_64")]
+    if avx2() {
+        // SAFETY: as in `normal_block`.
+        return unsafe { dot_block_avx2(layout, pad, coef, lo, out, c) };
+    }
+    dot_block_plain(layout, pad, coef, lo, out, c)
+}
+
+#[inline(always)]
+fn dot_block_plain(layout: &Layout<'_>, pad: &Padding, coef: &[f64], lo: usize, out: &mut [f64], c: &[f64]) {
+    let cb = super::dot(c, coef);
+    let mut row = RowView::new();
+    for (k, o) in out.iter_mut().enumerate() {
+        row.read(layout, pad, lo + k);
+        *o = row.dot(cb, coef);
+    }
+}
+with_simd!(dot_block_avx2, dot_block_plain, (layout: &Layout<'_>, pad: &Padding, coef: &[f64], lo: usize, out: &mut [f64], c: &[f64]) -> ());

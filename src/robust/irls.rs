@@ -120,8 +120,8 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
     // raises Σρ when ψ(u)/u is non-increasing in |u| (Huber 1981, ch. 7; from memory). Both iterations have the same fixed points, Σ ψ(r_i/s) x_i = 0; the
     // Newton steps converge quadratically near a minimum where IRLS converges only linearly.
     let terms = |ri: f64| {
-        let u = ri / scale;
-        (loss.psi_prime(u), scale * loss.psi(u), loss.rho(u))
+        let (dpsi, psi, rho) = loss.newton_terms(ri / scale);
+        (dpsi, scale * psi, rho)
     };
     let weight = |ri: f64| loss.weight(ri / scale);
     let (mut system, mut objective) = newton_sweep(x, y, start, &terms, &mut r, &mut w)?;

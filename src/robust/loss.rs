@@ -37,6 +37,11 @@ pub trait Loss: Sync {
     fn psi_scale(&self) -> f64 {
         1.0
     }
+    /// (ψ'(z), ψ(z), ρ(z)) together, as a Newton step needs them; a loss may share the work between
+    /// the three, but each value must be exactly that of its own method.
+    fn newton_terms(&self, z: f64) -> (f64, f64, f64) {
+        (self.psi_prime(z), self.psi(z), self.rho(z))
+    }
 }
 
 /// Least squares: ρ(z) = z²/2, ψ(z) = z, weight 1, ψ' = 1 (Huber 1981, §7.1, from memory).
@@ -204,6 +209,16 @@ impl Loss for Bisquare {
     fn psi_scale(&self) -> f64 {
         self.c * self.c / 6.0
     }
+    fn newton_terms(&self, z: f64) -> (f64, f64, f64) {
+        // The expressions of psi_prime, psi and rho above, with their common square computed once.
+        if z.abs() <= self.c {
+            let q = (z / self.c) * (z / self.c);
+            let v = 1.0 - q;
+            ((1.0 - q) * (1.0 - 5.0 * q), z * v * v, 1.0 - v * v * v)
+        } else {
+            (0.0, 0.0, 1.0)
+        }
+    }
 }
 
 // ---------------------------------------------------------------------------------------------------
@@ -325,6 +340,12 @@ mod tests {
     use super::*;
 
     fn check_invariants(loss: &dyn Loss) {
+        let t = loss.tuning();
+        for z in [0.0, -0.0, 1e-300, t, -t, t * (1.0 + f64::EPSILON), 2.5, -7.0, f64::INFINITY, f64::NAN] {
+            let (d, p, r) = loss.newton_terms(z);
+            let want = (loss.psi_prime(z), loss.psi(z), loss.rho(z));
+            assert_eq!((d.to_bits(), p.to_bits(), r.to_bits()), (want.0.to_bits(), want.1.to_bits(), want.2.to_bits()));
+        }
         assert_eq!(loss.rho(0.0), 0.0, "{}", loss.name());
         assert_eq!(loss.weight(0.0), 1.0, "{}", loss.name());
         let h = 1e-5;
