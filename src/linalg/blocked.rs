@@ -231,47 +231,41 @@ fn strip(dst: &mut [f64], wd: f64, v: &[f64; RUN_WIDTH]) {
 // same bits in either instruction set and no operation is fused or reordered (Rust never contracts
 // a·b + c into an FMA), so the choice changes speed only.
 
-/// Runs `$body` (a call of an `#[inline(always)]` function) compiled with AVX2 when the CPU has it.
-macro_rules! with_simd {
-    ($avx2:ident, $plain:ident, ($($arg:ident: $ty:ty),*) -> $ret:ty) => {
-        #[cfg(target_arch = "x86_64")]
-        #[target_feature(enable = "avx2")]
+/// `pub(super) fn $name(args) -> ret` running `$plain` (an `#[inline(always)]` function of the same
+/// arguments), through a copy compiled with AVX2 when the CPU has it.
+macro_rules! simd_kernel {
+    ($(#[$doc:meta])* $name:ident => $plain:ident ($($arg:ident: $ty:ty),*) -> $ret:ty) => {
+        $(#[$doc])*
         #[allow(clippy::too_many_arguments)]
-        fn $avx2($($arg: $ty),*) -> $ret {
+        pub(super) fn $name($($arg: $ty),*) -> $ret {
+            #[cfg(target_arch = "x86_64")]
+            if avx2() {
+                #[target_feature(enable = "avx2")]
+                #[allow(clippy::too_many_arguments)]
+                fn with_avx2($($arg: $ty),*) -> $ret {
+                    $plain($($arg),*)
+                }
+                // SAFETY: the CPU supports AVX2 (checked by `avx2`); the copy differs from `$plain`
+                // in instruction selection only.
+                return unsafe { with_avx2($($arg),*) };
+            }
             $plain($($arg),*)
         }
     };
 }
 
 /// Whether the AVX2 copies may run (detected once; `KNOTWISE_SIMD=0` turns them off, for checks).
+#[cfg(target_arch = "x86_64")]
 fn avx2() -> bool {
-    #[cfg(target_arch = "x86_64")]
-    {
-        static ON: std::sync::OnceLock<bool> = std::sync::OnceLock::new();
-        *ON.get_or_init(|| {
-            std::arch::is_x86_feature_detected!("avx2") && std::env::var("KNOTWISE_SIMD").map_or(true, |v| v != "0")
-        })
-    }
-    #[cfg(not(target_arch = "x86_64"))]
-    false
+    static ON: std::sync::OnceLock<bool> = std::sync::OnceLock::new();
+    *ON.get_or_init(|| {
+        std::arch::is_x86_feature_detected!("avx2") && std::env::var("KNOTWISE_SIMD").map_or(true, |v| v != "0")
+    })
 }
 
-/// Upper triangle of [X'WX | X'Wy] over rows lo..hi with baseline `c` (rows of zero weight skipped).
-pub(super) fn normal_block(
-    layout: &Layout<'_>,
-    pad: &Padding,
-    y: &[f64],
-    w: &[f64],
-    lo: usize,
-    hi: usize,
-    c: &[f64],
-) -> Vec<f64> {
-    #[cfg(target_arch = "x86_64")]
-    if avx2() {
-        // SAFETY: the CPU supports AVX2 (checked by `avx2`); the copy differs in instruction selection only.
-        return unsafe { normal_block_avx2(layout, pad, y, w, lo, hi, c) };
-    }
-    normal_block_plain(layout, pad, y, w, lo, hi, c)
+simd_kernel! {
+    /// Upper triangle of [X'WX | X'Wy] over rows lo..hi with baseline `c` (rows of zero weight skipped).
+    normal_block => normal_block_plain(layout: &Layout<'_>, pad: &Padding, y: &[f64], w: &[f64], lo: usize, hi: usize, c: &[f64]) -> Vec<f64>
 }
 
 #[inline(always)]
@@ -296,31 +290,14 @@ fn normal_block_plain(
     }
     acc.finish(pad, c)
 }
-with_simd!(normal_block_avx2, normal_block_plain, (layout: &Layout<'_>, pad: &Padding, y: &[f64], w: &[f64], lo: usize, hi: usize, c: &[f64]) -> Vec<f64>);
 
 /// The terms of one row for [`sweep_block`]: (matrix weight, right-hand-side multiplier, objective).
 pub(super) type Terms<'t> = dyn Fn(f64, f64) -> Option<(f64, f64, f64)> + Sync + 't;
 
-/// One block of the parent's `sweep`: residuals into `r`, matrix weights into `d`, and the block's
-/// [Σ d x x' | Σ g x] with its summed objective; None on an unusable value.
-#[allow(clippy::too_many_arguments)]
-pub(super) fn sweep_block(
-    layout: &Layout<'_>,
-    pad: &Padding,
-    y: &[f64],
-    coef: &[f64],
-    terms: &Terms<'_>,
-    lo: usize,
-    r: &mut [f64],
-    d: &mut [f64],
-    c: &[f64],
-) -> Option<(Vec<f64>, f64)> {
-    #[cfg(target_arch = "x86_64")]
-    if avx2() {
-        // SAFETY: as in `normal_block`.
-        return unsafe { sweep_block_avx2(layout, pad, y, coef, terms, lo, r, d, c) };
-    }
-    sweep_block_plain(layout, pad, y, coef, terms, lo, r, d, c)
+simd_kernel! {
+    /// One block of the parent's `sweep`: residuals into `r`, matrix weights into `d`, and the block's
+    /// [Σ d x x' | Σ g x] with its summed objective; None on an unusable value.
+    sweep_block => sweep_block_plain(layout: &Layout<'_>, pad: &Padding, y: &[f64], coef: &[f64], terms: &Terms<'_>, lo: usize, r: &mut [f64], d: &mut [f64], c: &[f64]) -> Option<(Vec<f64>, f64)>
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -357,26 +334,10 @@ fn sweep_block_plain(
     }
     Some((acc.finish(pad, c), objective))
 }
-with_simd!(sweep_block_avx2, sweep_block_plain, (layout: &Layout<'_>, pad: &Padding, y: &[f64], coef: &[f64], terms: &Terms<'_>, lo: usize, r: &mut [f64], d: &mut [f64], c: &[f64]) -> Option<(Vec<f64>, f64)>);
 
-/// X'W(y − Xb) over rows lo..hi with baseline `c` (rows of zero weight skipped).
-#[allow(clippy::too_many_arguments)]
-pub(super) fn residual_block(
-    layout: &Layout<'_>,
-    pad: &Padding,
-    y: &[f64],
-    w: &[f64],
-    coef: &[f64],
-    lo: usize,
-    hi: usize,
-    c: &[f64],
-) -> Vec<f64> {
-    #[cfg(target_arch = "x86_64")]
-    if avx2() {
-        // SAFETY: as in `normal_block`.
-        return unsafe { residual_block_avx2(layout, pad, y, w, coef, lo, hi, c) };
-    }
-    residual_block_plain(layout, pad, y, w, coef, lo, hi, c)
+simd_kernel! {
+    /// X'W(y − Xb) over rows lo..hi with baseline `c` (rows of zero weight skipped).
+    residual_block => residual_block_plain(layout: &Layout<'_>, pad: &Padding, y: &[f64], w: &[f64], coef: &[f64], lo: usize, hi: usize, c: &[f64]) -> Vec<f64>
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -409,16 +370,10 @@ fn residual_block_plain(
     }
     acc
 }
-with_simd!(residual_block_avx2, residual_block_plain, (layout: &Layout<'_>, pad: &Padding, y: &[f64], w: &[f64], coef: &[f64], lo: usize, hi: usize, c: &[f64]) -> Vec<f64>);
 
-/// x_i'b for rows lo..lo + out.len() with baseline `c`.
-pub(super) fn dot_block(layout: &Layout<'_>, pad: &Padding, coef: &[f64], lo: usize, out: &mut [f64], c: &[f64]) {
-    #[cfg(target_arch = "x86_64")]
-    if avx2() {
-        // SAFETY: as in `normal_block`.
-        return unsafe { dot_block_avx2(layout, pad, coef, lo, out, c) };
-    }
-    dot_block_plain(layout, pad, coef, lo, out, c)
+simd_kernel! {
+    /// x_i'b for rows lo..lo + out.len() with baseline `c`.
+    dot_block => dot_block_plain(layout: &Layout<'_>, pad: &Padding, coef: &[f64], lo: usize, out: &mut [f64], c: &[f64]) -> ()
 }
 
 #[inline(always)]
@@ -430,4 +385,3 @@ fn dot_block_plain(layout: &Layout<'_>, pad: &Padding, coef: &[f64], lo: usize, 
         *o = row.dot(cb, coef);
     }
 }
-with_simd!(dot_block_avx2, dot_block_plain, (layout: &Layout<'_>, pad: &Padding, coef: &[f64], lo: usize, out: &mut [f64], c: &[f64]) -> ());
