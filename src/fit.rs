@@ -143,6 +143,8 @@ struct Solved {
     interval: IntervalKind,
     critical: f64,
     xtx_inverse: Vec<f64>,
+    /// y − X·coef when the solver has them already (computed here otherwise).
+    residuals: Option<Vec<f64>>,
 }
 
 /// Standard errors, 95% intervals, residuals, fitted values, RSS and R² of a solved fit.
@@ -151,8 +153,14 @@ fn assemble(design: &Design, s: Solved) -> Fit {
     let std_errors: Vec<f64> = (0..p).map(|j| s.cov[j * p + j].max(0.0).sqrt()).collect();
     let lower = (0..p).map(|j| s.coef[j] - s.critical * std_errors[j]).collect();
     let upper = (0..p).map(|j| s.coef[j] + s.critical * std_errors[j]).collect();
-    let mut residuals = vec![0.0; design.n];
-    linalg::residuals_rows(design, &design.y, &s.coef, &mut residuals);
+    let residuals = match s.residuals {
+        Some(r) if r.len() == design.n => r,
+        _ => {
+            let mut r = vec![0.0; design.n];
+            linalg::residuals_rows(design, &design.y, &s.coef, &mut r);
+            r
+        }
+    };
     let fitted = design.y.iter().zip(&residuals).map(|(y, r)| y - r).collect();
     let rss = residuals.iter().map(|r| r * r).sum::<f64>();
     let tss = total_sum_of_squares(&design.y);
@@ -199,6 +207,7 @@ pub fn classical(design: &Design) -> Result<Fit, FitError> {
             interval: IntervalKind::StudentT,
             critical,
             xtx_inverse: inv,
+            residuals: ls.residuals,
         },
     ))
 }
@@ -272,6 +281,7 @@ pub fn robust_with_xtx(
             interval: IntervalKind::Normal,
             critical,
             xtx_inverse: inv,
+            residuals: Some(est.residuals),
         },
     ))
 }

@@ -139,28 +139,39 @@ pub fn map_blocks_mut2<T: Send>(
     f: impl Fn(usize, &mut [f64], &mut [f64]) -> T + Sync,
 ) -> Vec<T> {
     assert_eq!(a.len(), b.len(), "map_blocks_mut2: arrays of different lengths");
-    let n = a.len();
-    let nb = n.div_ceil(BLOCK_ROWS);
+    let blocks = a.chunks_mut(BLOCK_ROWS).zip(b.chunks_mut(BLOCK_ROWS)).collect();
+    map_block_items(blocks, |lo, (x, y)| f(lo, x, y))
+}
+
+/// `f(start, a_block)` for every fixed block of [`BLOCK_ROWS`] rows of `a` (to fill); results in block
+/// order (as [`map_blocks`]).
+pub fn map_blocks_mut<T: Send>(a: &mut [f64], f: impl Fn(usize, &mut [f64]) -> T + Sync) -> Vec<T> {
+    map_block_items(a.chunks_mut(BLOCK_ROWS).collect(), f)
+}
+
+/// `f(start, item)` for the per-block items of consecutive [`BLOCK_ROWS`]-row blocks, results in block
+/// order; blocks dealt to threads in contiguous runs (as [`map_blocks`]).
+fn map_block_items<C: Send, T: Send>(mut blocks: Vec<C>, f: impl Fn(usize, C) -> T + Sync) -> Vec<T> {
+    let nb = blocks.len();
     let t = available_threads(nb);
-    let mut blocks: Vec<(usize, &mut [f64], &mut [f64])> = a
-        .chunks_mut(BLOCK_ROWS)
-        .zip(b.chunks_mut(BLOCK_ROWS))
-        .enumerate()
-        .map(|(k, (x, y))| (k * BLOCK_ROWS, x, y))
-        .collect();
     if t <= 1 {
-        return blocks.into_iter().map(|(lo, x, y)| f(lo, x, y)).collect();
+        return blocks.into_iter().enumerate().map(|(k, c)| f(k * BLOCK_ROWS, c)).collect();
     }
     let per = nb.div_ceil(t);
     std::thread::scope(|s| {
         let f = &f;
         let mut handles = Vec::new();
+        let mut first = 0;
         while !blocks.is_empty() {
             let rest = blocks.split_off(per.min(blocks.len()));
             let mine = std::mem::replace(&mut blocks, rest);
-            handles.push(
-                s.spawn(move || as_worker(|| mine.into_iter().map(|(lo, x, y)| f(lo, x, y)).collect::<Vec<T>>())),
-            );
+            let start = first;
+            first += mine.len();
+            handles.push(s.spawn(move || {
+                as_worker(|| {
+                    mine.into_iter().enumerate().map(|(k, c)| f((start + k) * BLOCK_ROWS, c)).collect::<Vec<T>>()
+                })
+            }));
         }
         handles.into_iter().flat_map(|h| h.join().expect("linalg worker thread panicked")).collect()
     })
@@ -358,6 +369,9 @@ pub enum LsMethod {
 #[derive(Debug, Clone)]
 pub struct LeastSquares {
     pub coef: Vec<f64>,
+    /// y − X·coef for every row, when the solve computed them on the way (the refined normal
+    /// equations do; QR does not).
+    pub residuals: Option<Vec<f64>>,
     /// Residual sum of squares (weighted when weights were given).
     pub rss: f64,
     /// Upper-triangular R (p × p, row-major) of the (weighted) design.
@@ -533,7 +547,7 @@ fn qr_solve_chunked_rows<R: Rows + ?Sized>(
     if !rss.is_finite() || coef.iter().any(|c| !c.is_finite()) {
         return Err(LinalgError::NonFinite);
     }
-    Ok(LeastSquares { coef, rss, r, p, method: LsMethod::Householder })
+    Ok(LeastSquares { coef, rss, r, p, method: LsMethod::Householder, residuals: None })
 }
 
 /// One block's triangular factor [R | Q'y] (p × (p+1)), column sums of squares and row count.
@@ -1097,45 +1111,60 @@ pub fn least_squares_rows<R: Rows + ?Sized>(x: &R, y: &[f64], w: Option<&[f64]>)
     }
     let rhs: Vec<f64> = (0..p).map(|j| a[j * width + p]).collect();
     let mut coef = cholesky_apply(&u, p, p, &rhs);
+    let mut residuals = vec![0.0; n];
+    // The residuals and RSS at `coef`, once a correction is at rounding level (and so not applied).
+    let mut settled = None;
     for _ in 0..REFINE_STEPS {
-        let g = xtw_residual(x, y, wv, &coef);
+        let (g, rss) = xtw_residual(x, y, wv, &coef, &mut residuals);
         let delta = cholesky_apply(&u, p, p, &g);
         let big = coef.iter().fold(0.0f64, |m, v| m.max(v.abs()));
         let step = delta.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        if !(step > 4.0 * f64::EPSILON * big) {
+            settled = Some(rss);
+            break;
+        }
         for (c, d) in coef.iter_mut().zip(&delta) {
             *c += d;
         }
-        if !(step > 4.0 * f64::EPSILON * big) {
-            break;
-        }
     }
-    let rss = weighted_rss(x, y, w, &coef);
+    let rss = match settled {
+        Some(rss) => rss,
+        None => {
+            residuals_rows(x, y, &coef, &mut residuals);
+            weighted_rss(x, y, w, &coef)
+        }
+    };
     if !rss.is_finite() || coef.iter().any(|c| !c.is_finite()) {
         return Err(LinalgError::NonFinite);
     }
-    Ok(LeastSquares { coef, rss, r: u, p, method: LsMethod::RefinedNormal })
+    Ok(LeastSquares { coef, rss, r: u, p, method: LsMethod::RefinedNormal, residuals: Some(residuals) })
 }
 
-/// X'W(y − Xb), over the fixed blocks in block order, each row's deviation read once.
-fn xtw_residual<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64], coef: &[f64]) -> Vec<f64> {
+/// X'W(y − Xb) and Σ w (y − Xb)² over the fixed blocks in block order, each row's deviation read
+/// once; the residuals y − Xb of every row (zero weight included) into `r`. The sum of squares is
+/// that of [`weighted_rss`], bit for bit.
+fn xtw_residual<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64], coef: &[f64], r: &mut [f64]) -> (Vec<f64>, f64) {
     let p = x.p();
-    let parts = map_blocks(x.n(), |lo, hi| {
+    let parts = map_blocks_mut(&mut r[..x.n()], |lo, r| {
+        let hi = lo + r.len();
         let c = x.baseline(lo, hi);
+        if let Some((layout, pad)) = blocked_layout(x) {
+            return blocked::residual_block(&layout, &pad, y, w, coef, lo, r, &c);
+        }
         let cb = dot(&c, coef);
         let mut acc = vec![0.0; p];
-        let mut sum = 0.0;
-        if let Some((layout, pad)) = blocked_layout(x) {
-            return blocked::residual_block(&layout, &pad, y, w, coef, lo, hi, &c);
-        }
+        let (mut sum, mut rss) = (0.0, 0.0);
         let mut idx = vec![0usize; p];
         let mut val = vec![0.0; p];
-        for i in lo..hi {
+        for (i, ri) in (lo..hi).zip(r.iter_mut()) {
+            let m = x.deviation(i, &c, &mut idx, &mut val);
+            let e = y[i] - sparse_dot(cb, &idx[..m], &val[..m], coef);
+            *ri = e;
             if w[i] == 0.0 {
                 continue;
             }
-            let m = x.deviation(i, &c, &mut idx, &mut val);
-            let fit = sparse_dot(cb, &idx[..m], &val[..m], coef);
-            let wr = w[i] * (y[i] - fit);
+            rss += w[i] * e * e;
+            let wr = w[i] * e;
             sum += wr;
             for (&j, &v) in idx[..m].iter().zip(&val[..m]) {
                 acc[j] += v * wr;
@@ -1144,9 +1173,10 @@ fn xtw_residual<R: Rows + ?Sized>(x: &R, y: &[f64], w: &[f64], coef: &[f64]) -> 
         for (a, cj) in acc.iter_mut().zip(&c) {
             *a += cj * sum;
         }
-        acc
+        (acc, rss)
     });
-    add_parts(p, parts)
+    let rss = parts.iter().fold(0.0, |a, (_, b)| a + b);
+    (add_parts(p, parts.into_iter().map(|(g, _)| g)), rss)
 }
 
 /// Residuals y − Xb into `out` (rows in parallel; each value is computed the same way on any thread).

@@ -336,8 +336,9 @@ fn sweep_block_plain(
 }
 
 simd_kernel! {
-    /// X'W(y − Xb) over rows lo..hi with baseline `c` (rows of zero weight skipped).
-    residual_block => residual_block_plain(layout: &Layout<'_>, pad: &Padding, y: &[f64], w: &[f64], coef: &[f64], lo: usize, hi: usize, c: &[f64]) -> Vec<f64>
+    /// X'W(y − Xb) and Σ w (y − Xb)² over rows lo..lo + r.len() with baseline `c` (rows of zero
+    /// weight skipped), the residuals of every row into `r`.
+    residual_block => residual_block_plain(layout: &Layout<'_>, pad: &Padding, y: &[f64], w: &[f64], coef: &[f64], lo: usize, r: &mut [f64], c: &[f64]) -> (Vec<f64>, f64)
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -349,26 +350,30 @@ fn residual_block_plain(
     w: &[f64],
     coef: &[f64],
     lo: usize,
-    hi: usize,
+    r: &mut [f64],
     c: &[f64],
-) -> Vec<f64> {
+) -> (Vec<f64>, f64) {
     let cb = super::dot(c, coef);
     let mut acc = vec![0.0; c.len()];
-    let mut sum = 0.0;
+    let (mut sum, mut rss) = (0.0, 0.0);
     let mut row = RowView::new();
-    for i in lo..hi {
+    for (k, rk) in r.iter_mut().enumerate() {
+        let i = lo + k;
+        row.read(layout, pad, i);
+        let e = y[i] - row.dot(cb, coef);
+        *rk = e;
         if w[i] == 0.0 {
             continue;
         }
-        row.read(layout, pad, i);
-        let wr = w[i] * (y[i] - row.dot(cb, coef));
+        rss += w[i] * e * e;
+        let wr = w[i] * e;
         sum += wr;
         row.for_each(|j, v| acc[j] += v * wr);
     }
     for (a, cj) in acc.iter_mut().zip(c) {
         *a += cj * sum;
     }
-    acc
+    (acc, rss)
 }
 
 simd_kernel! {

@@ -175,10 +175,13 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
     }
     // The reported solve: once more, accurately, with the weights of the final residuals.
     let coef = if opts.final_qr {
-        let coef = least_squares_rows(x, y, Some(&w))?.coef;
-        residuals_rows(x, y, &coef, &mut r);
+        let ls = least_squares_rows(x, y, Some(&w))?;
+        match ls.residuals {
+            Some(res) => r = res,
+            None => residuals_rows(x, y, &ls.coef, &mut r),
+        }
         weights_into(loss, &r, scale, &mut w);
-        coef
+        ls.coef
     } else {
         last
     };
