@@ -70,25 +70,15 @@ impl SmoothEncoding {
         placement: KnotPlacement,
     ) -> Result<Self, BasisError> {
         let basis = Basis::for_sample(x, degree, size, placement)?;
-        let (first, values) = basis_rows(&basis, x, None);
-        Ok(SmoothEncoding::from_rows(column, basis, &first, &values))
+        let rows = basis_rows(&basis, x, None);
+        Ok(SmoothEncoding::from_sums(column, basis, &rows.sums, x.len()))
     }
 
-    /// The encoding of `basis` with centring means taken from its rows on the whole sample (as
-    /// [`basis_rows`] gives them): the mean of each basis function, summed in row order.
-    fn from_rows(column: &str, basis: Basis, first: &[u32], values: &[f64]) -> Self {
-        let k = basis.size();
-        let width = basis.degree + 1;
-        let mut sums = vec![0.0; k];
-        for (&f, row) in first.iter().zip(values.chunks_exact(width)) {
-            for (j, v) in row.iter().enumerate() {
-                if let Some(s) = sums.get_mut(f as usize + j) {
-                    *s += v;
-                }
-            }
-        }
-        let n = first.len().max(1) as f64;
-        let means = sums.into_iter().map(|s| s / n).collect();
+    /// The encoding of `basis` with centring means from the sums of its rows over the whole sample of
+    /// `n` rows (as [`basis_rows`] gives them).
+    fn from_sums(column: &str, basis: Basis, sums: &[f64], n: usize) -> Self {
+        let n = n.max(1) as f64;
+        let means = sums.iter().map(|s| s / n).collect();
         SmoothEncoding { column: column.to_string(), basis, means }
     }
 
@@ -113,28 +103,44 @@ impl SmoothEncoding {
     }
 }
 
-/// Each row's first non-zero basis index and its degree + 1 values at `x[i]`, for the rows `rows`
-/// (all of `x` when None). Rows are evaluated in parallel; each value is computed the same way on any
-/// thread.
-fn basis_rows(basis: &Basis, x: &[f64], rows: Option<&[usize]>) -> (Vec<u32>, Vec<f64>) {
+/// A smooth term's rows: each row's first non-zero basis index and its degree + 1 values, and the sum
+/// of each basis function over the rows.
+struct BasisRows {
+    first: Vec<u32>,
+    values: Vec<f64>,
+    sums: Vec<f64>,
+}
+
+/// The [`BasisRows`] of `basis` at `x[i]` for the rows `rows` (all of `x` when None). Rows are
+/// evaluated in parallel over the fixed row blocks, each value the same way on any thread; the sums
+/// are taken per block and added in block order.
+fn basis_rows(basis: &Basis, x: &[f64], rows: Option<&[usize]>) -> BasisRows {
     let width = basis.degree + 1;
+    let k = basis.size();
     let n = rows.map_or(x.len(), |r| r.len());
-    let parts = linalg::map_blocks(n, |lo, hi| {
-        let mut first = Vec::with_capacity(hi - lo);
-        let mut values = vec![0.0; (hi - lo) * width];
-        for (k, out) in values.chunks_exact_mut(width).enumerate() {
-            let i = rows.map_or(lo + k, |r| r[lo + k]);
-            first.push(basis.eval_nonzero(x[i], out) as u32);
+    let mut first = vec![0u32; n];
+    let mut values = vec![0.0; n * width];
+    let blocks: Vec<(&mut [u32], &mut [f64])> =
+        first.chunks_mut(linalg::BLOCK_ROWS).zip(values.chunks_mut(linalg::BLOCK_ROWS * width)).collect();
+    let parts = linalg::map_block_items(blocks, |lo, (first, values)| {
+        let mut sums = vec![0.0; k];
+        for (a, (f, out)) in first.iter_mut().zip(values.chunks_exact_mut(width)).enumerate() {
+            let i = rows.map_or(lo + a, |r| r[lo + a]);
+            let f0 = basis.eval_nonzero(x[i], out);
+            *f = f0 as u32;
+            for (s, v) in sums.iter_mut().skip(f0).zip(out.iter()) {
+                *s += v;
+            }
         }
-        (first, values)
+        sums
     });
-    let mut first = Vec::with_capacity(n);
-    let mut values = Vec::with_capacity(n * width);
-    for (f, v) in parts {
-        first.extend_from_slice(&f);
-        values.extend_from_slice(&v);
+    let mut sums = vec![0.0; k];
+    for part in parts {
+        for (s, v) in sums.iter_mut().zip(part) {
+            *s += v;
+        }
     }
-    (first, values)
+    BasisRows { first, values, sums }
 }
 
 /// The smooth columns of a frame, each sorted once, so that the designs of a whole grid share the
@@ -143,18 +149,19 @@ fn basis_rows(basis: &Basis, x: &[f64], rows: Option<&[usize]>) -> (Vec<u32>, Ve
 pub struct SortedColumns(Vec<Vec<f64>>);
 
 impl SortedColumns {
+    /// The columns are sorted in parallel, one per thread; values equal under `total_cmp` have the
+    /// same bits, so the unstable sort gives the one sorted order.
     pub fn new(frame: &Frame, terms: &ModelTerms) -> Result<Self, DesignError> {
-        terms
+        let columns = terms
             .smooth
             .iter()
-            .map(|s| {
-                let x = frame.numeric(&s.column).ok_or_else(|| DesignError::MissingColumn(s.column.clone()))?;
-                let mut sorted = x.to_vec();
-                sorted.sort_by(f64::total_cmp);
-                Ok(sorted)
-            })
-            .collect::<Result<Vec<_>, _>>()
-            .map(SortedColumns)
+            .map(|s| frame.numeric(&s.column).ok_or_else(|| DesignError::MissingColumn(s.column.clone())))
+            .collect::<Result<Vec<_>, _>>()?;
+        Ok(SortedColumns(linalg::map_tasks(columns.len(), |j| {
+            let mut sorted = columns[j].to_vec();
+            sorted.sort_unstable_by(f64::total_cmp);
+            sorted
+        })))
     }
 }
 
@@ -231,8 +238,8 @@ impl Design {
                 size: k,
                 error,
             })?;
-            let (first, values) = basis_rows(&basis, x, None);
-            encodings.push(SmoothEncoding::from_rows(&s.column, basis, &first, &values));
+            let BasisRows { first, values, sums } = basis_rows(&basis, x, None);
+            encodings.push(SmoothEncoding::from_sums(&s.column, basis, &sums, x.len()));
             rows.push((first, values));
         }
         Design::assemble(frame, terms, encodings, None, Some(rows))
@@ -313,7 +320,10 @@ impl Design {
             let width = enc.basis.degree + 1;
             let (first, values) = match smooth_rows.as_mut().and_then(|r| r.get_mut(t)) {
                 Some(r) => std::mem::take(r),
-                None => basis_rows(&enc.basis, xs, if whole { None } else { Some(rows) }),
+                None => {
+                    let r = basis_rows(&enc.basis, xs, if whole { None } else { Some(rows) });
+                    (r.first, r.values)
+                }
             };
             let span = smooth_span(m, width, &first);
             store.push(Store::Smooth { start, m, width, span, first, values });

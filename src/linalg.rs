@@ -149,9 +149,10 @@ pub fn map_blocks_mut<T: Send>(a: &mut [f64], f: impl Fn(usize, &mut [f64]) -> T
     map_block_items(a.chunks_mut(BLOCK_ROWS).collect(), f)
 }
 
-/// `f(start, item)` for the per-block items of consecutive [`BLOCK_ROWS`]-row blocks, results in block
-/// order; blocks dealt to threads in contiguous runs (as [`map_blocks`]).
-fn map_block_items<C: Send, T: Send>(mut blocks: Vec<C>, f: impl Fn(usize, C) -> T + Sync) -> Vec<T> {
+/// `f(start, item)` for the per-block items of consecutive [`BLOCK_ROWS`]-row blocks (item b belongs to
+/// rows from b·BLOCK_ROWS, e.g. the blocks' parts of arrays to fill), results in block order; blocks
+/// dealt to threads in contiguous runs (as [`map_blocks`]).
+pub fn map_block_items<C: Send, T: Send>(mut blocks: Vec<C>, f: impl Fn(usize, C) -> T + Sync) -> Vec<T> {
     let nb = blocks.len();
     let t = available_threads(nb);
     if t <= 1 {
