@@ -179,7 +179,13 @@ impl Basis {
         let x = x.max(lo).min(hi);
         // Interior knots t[p+1..k]; the number of them ≤ x gives the span, and x = hi lands in the last
         // non-empty span [t_{k−1}, t_k] (closed right end).
-        let mu = p + t[p + 1..k].partition_point(|&knot| knot <= x);
+        let interior = &t[p + 1..k];
+        let mu = p + if interior.len() <= 32 {
+            // A branch-free count for the usual few knots (the same number: the knots are sorted).
+            interior.iter().map(|&knot| usize::from(knot <= x)).sum::<usize>()
+        } else {
+            interior.partition_point(|&knot| knot <= x)
+        };
 
         out[0] = 1.0;
         for j in 1..=p {

@@ -370,8 +370,15 @@ pub fn write_rows_csv(a: &Analysis, out: &mut dyn std::io::Write) -> std::io::Re
             };
             for i in wave_lo + lo..wave_lo + hi {
                 let y = sel.robust_design.y[i];
-                let _ = w.write_field(a.frame.row_name(i));
-                let _ = w.write_field(a.frame.lines[i].to_string());
+                let mut line = itoa::Buffer::new();
+                let line = line.format(a.frame.lines[i]);
+                // The row's name is its id, or (no id column) its source line, as `Frame::row_name`.
+                match a.frame.ids.get(i) {
+                    Some(id) => w.write_field(id),
+                    None => w.write_field(line),
+                }
+                .ok();
+                let _ = w.write_field(line);
                 for v in [y, cf.fitted[i], cf.residuals[i], rf.fitted[i], rf.residuals[i]] {
                     field(&mut w, v);
                 }

@@ -339,9 +339,131 @@ pub fn num(v: f64) -> String {
 }
 
 /// [`num`] appended to `out` (no allocation of its own, for rows.csv's millions of fields).
+///
+/// The text is the shortest digits that read back to the same number (the `ryu` crate's; Adams 2018),
+/// written out without an exponent as Rust's `{}` writes numbers: "0.000000125",
+/// "1000000000000000000000", "-3". It is Rust's `{}` of the value except where two shortest digit
+/// strings are equally near the value, where ryu takes the even last digit (checked in the tests
+/// below); ryu finds the digits several times quicker, which matters for rows.csv.
 pub fn num_into(out: &mut String, v: f64) {
     if v.is_finite() {
-        use std::fmt::Write as _;
-        let _ = write!(out, "{v}");
+        let mut buf = ryu::Buffer::new();
+        positional(buf.format_finite(v), out);
+    }
+}
+
+/// ryu's text ("-1.25e-7", "1e21", "12.5", "3.0") rewritten in positional form, appended to `out`.
+fn positional(s: &str, out: &mut String) {
+    let (negative, s) = match s.strip_prefix('-') {
+        Some(rest) => (true, rest),
+        None => (false, s),
+    };
+    let (mantissa, exponent) = match s.split_once(['e', 'E']) {
+        Some((m, e)) => (m, e.parse::<i64>().unwrap_or(0)),
+        None => (s, 0),
+    };
+    let (int, frac) = mantissa.split_once('.').unwrap_or((mantissa, ""));
+    // The digits int ++ frac (at most 17 significant ones, plus a few zeros) with the decimal point
+    // after `point` of them.
+    let mut store = [0u8; 40];
+    let mut len = 0;
+    for d in int.bytes().chain(frac.bytes()).take(store.len()) {
+        store[len] = d;
+        len += 1;
+    }
+    let lead = store[..len].iter().take_while(|&&d| d == b'0').count();
+    let mut digits = &store[lead..len];
+    let point = int.len() as i64 + exponent - lead as i64;
+    while let [rest @ .., b'0'] = digits {
+        digits = rest;
+    }
+    if negative {
+        out.push('-');
+    }
+    // ASCII digits from a str, so always valid UTF-8.
+    let put = |out: &mut String, d: &[u8]| out.push_str(std::str::from_utf8(d).unwrap_or_default());
+    let n = digits.len() as i64;
+    if n == 0 {
+        out.push('0');
+    } else if point <= 0 {
+        out.push_str("0.");
+        out.extend(std::iter::repeat_n('0', (-point) as usize));
+        put(out, digits);
+    } else if point >= n {
+        put(out, digits);
+        out.extend(std::iter::repeat_n('0', (point - n) as usize));
+    } else {
+        put(out, &digits[..point as usize]);
+        out.push('.');
+        put(out, &digits[point as usize..]);
+    }
+}
+
+#[cfg(test)]
+mod number_text_tests {
+    use super::num;
+
+    /// `num` reads back to the value and is Rust's `{}` of it, byte for byte, except at an exact tie
+    /// between two shortest digit strings (there the last digit may differ by one): edge values and a
+    /// million random bit patterns.
+    #[test]
+    fn num_matches_rust_display() {
+        let check = |v: f64| {
+            let (ours, display) = (num(v), format!("{v}"));
+            assert_eq!(ours.parse::<f64>().map(f64::to_bits), Ok(v.to_bits()), "{v:e} -> {ours}");
+            if ours != display {
+                let (a, b) = (ours.as_bytes(), display.as_bytes());
+                let last = a.len() - 1;
+                assert!(
+                    a.len() == b.len() && a[..last] == b[..last] && a[last].abs_diff(b[last]) == 1,
+                    "{v:e}: {ours} vs {display}"
+                );
+            }
+        };
+        let mut edge = vec![
+            0.0,
+            -0.0,
+            1.0,
+            -3.0,
+            0.1,
+            1e-7,
+            1.25e-7,
+            123456.789,
+            1e15,
+            1e16,
+            1e17,
+            1e21,
+            1e22,
+            9007199254740993.0,
+            f64::MAX,
+            f64::MIN,
+            f64::MIN_POSITIVE,
+            5e-324,
+            std::f64::consts::PI,
+            -2.5e-300,
+            1e300,
+        ];
+        for e in -30..=30 {
+            edge.push(10f64.powi(e));
+            edge.push(-1.5 * 10f64.powi(e));
+        }
+        for v in edge {
+            assert_eq!(num(v), format!("{v}"), "{v:e}");
+        }
+        // An exact tie: 1394865425023536.25 lies halfway between ...536.2 and ...536.3.
+        assert_eq!(num(1394865425023536.0 + 0.25), "1394865425023536.2");
+        let mut state = 0x9E3779B97F4A7C15u64;
+        for _ in 0..1_000_000 {
+            // xorshift64* (Vigna 2016), for bit patterns only.
+            state ^= state >> 12;
+            state ^= state << 25;
+            state ^= state >> 27;
+            let v = f64::from_bits(state.wrapping_mul(0x2545F4914F6CDD1D));
+            if v.is_finite() {
+                check(v);
+            }
+        }
+        assert_eq!(num(f64::NAN), "");
+        assert_eq!(num(f64::INFINITY), "");
     }
 }

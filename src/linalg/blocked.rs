@@ -126,19 +126,6 @@ impl RowView {
         }
         s
     }
-
-    /// The row's entries as (design column, value) in ascending order, for X'v-type sums.
-    #[inline]
-    pub(super) fn for_each(&self, mut f: impl FnMut(usize, f64)) {
-        for &(j, v) in &self.singles[..self.ns] {
-            f(j, v);
-        }
-        for &(c0, len, _, v) in &self.runs[..self.nr] {
-            for (k, &vk) in v[..len].iter().enumerate() {
-                f(c0 + k, vk);
-            }
-        }
-    }
 }
 
 /// A block's running sums in the padded column space: the upper triangle of Σ w d d' and Σ w y d
@@ -213,6 +200,16 @@ impl BlockedAcc {
             dst[p] += self.sum_wy * c[j];
         }
         out
+    }
+}
+
+/// dst[k] += v[k] · s for a 4-wide strip (the product in that order, as X'v sums write it).
+#[inline(always)]
+fn strip_scaled(dst: &mut [f64], v: &[f64; RUN_WIDTH], s: f64) {
+    if let Ok(dst) = <&mut [f64; RUN_WIDTH]>::try_from(dst) {
+        for (d, vk) in dst.iter_mut().zip(v) {
+            *d += vk * s;
+        }
     }
 }
 
@@ -354,7 +351,8 @@ fn residual_block_plain(
     c: &[f64],
 ) -> (Vec<f64>, f64) {
     let cb = super::dot(c, coef);
-    let mut acc = vec![0.0; c.len()];
+    // X'Wr in the padded columns (runs as 4-wide strips; the padding is dropped below).
+    let mut padded = vec![0.0; pad.padded + 1];
     let (mut sum, mut rss) = (0.0, 0.0);
     let mut row = RowView::new();
     for (k, rk) in r.iter_mut().enumerate() {
@@ -368,8 +366,14 @@ fn residual_block_plain(
         rss += w[i] * e * e;
         let wr = w[i] * e;
         sum += wr;
-        row.for_each(|j, v| acc[j] += v * wr);
+        for &(j, v) in &row.singles[..row.ns] {
+            padded[j] += v * wr;
+        }
+        for &(_, _, pc, v) in &row.runs[..row.nr] {
+            strip_scaled(&mut padded[pc..pc + RUN_WIDTH], &v, wr);
+        }
     }
+    let mut acc: Vec<f64> = pad.map.iter().map(|&m| padded[m]).collect();
     for (a, cj) in acc.iter_mut().zip(c) {
         *a += cj * sum;
     }
