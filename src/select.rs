@@ -315,17 +315,30 @@ fn argmin(points: &[GridPoint], key: impl Fn(&GridPoint) -> Option<f64>) -> Opti
 }
 
 /// The classical best: point index, BIC, design, classical fit, robust fit there, S-estimate there.
-type KeptClassical = (usize, f64, Arc<Design>, Fit, Fit, Option<SEstimate>);
-/// The robust best: point index, robust criterion, design, robust fit, S-estimate there.
-type KeptRobust = (usize, f64, Arc<Design>, Fit, Option<SEstimate>);
+type KeptClassical = (usize, f64, Option<Arc<Design>>, Fit, Option<Fit>, Option<SEstimate>);
+/// Index, robust criterion, design, robust fit and S-estimate of the robust best.
+type KeptRobust = (usize, f64, Option<Arc<Design>>, Fit, Option<SEstimate>);
 
-/// Every evaluated point, and the designs and fits of the best point so far for each criterion only,
-/// so that memory stays at a few designs however large the grid (ties keep the earlier point).
+/// Above this many rows the kept best points do not hold their designs (each is ~130 bytes a row);
+/// the chosen ones are built again after the search, which gives the same design. Below it, keeping
+/// them is cheaper than building them twice. `KNOTWISE_KEEP_DESIGN_ROWS` overrides it (memory and
+/// speed only; the tests run both ways and compare the outputs byte for byte).
+fn keep_design_max_rows() -> usize {
+    static ROWS: std::sync::OnceLock<usize> = std::sync::OnceLock::new();
+    *ROWS.get_or_init(|| {
+        std::env::var("KNOTWISE_KEEP_DESIGN_ROWS").ok().and_then(|v| v.trim().parse().ok()).unwrap_or(2_000_000)
+    })
+}
+
+/// Every evaluated point, and the fits (and, for moderate n, the designs) of the best point so far
+/// for each criterion only, so that memory stays at a few designs however large the grid (ties keep
+/// the earlier point).
 #[derive(Default)]
 struct Keeper {
     points: Vec<GridPoint>,
-    /// The classical best, with the robust fit at the same point (the fallback when no point has a robust
-    /// criterion because the robust scale collapsed everywhere).
+    /// The classical best, with the robust fit at the same point while no point has a robust
+    /// criterion (the fallback when the robust scale collapsed everywhere; dropped once a robust best
+    /// exists, since the fallback can then no longer be needed).
     classical: Option<KeptClassical>,
     robust: Option<KeptRobust>,
 }
@@ -335,21 +348,25 @@ impl Keeper {
         let i = self.points.len();
         let better = |v: Option<f64>, best: Option<f64>| v.is_some_and(|v| v.is_finite() && best.is_none_or(|b| v < b));
         if let (Some((design, classical)), Some((robust, s_est))) = (e.classical, e.robust) {
-            // One design shared by both criteria when the same point is best for each.
-            let design = Arc::new(design);
+            // One design shared by both criteria when the same point is best for each; none kept for
+            // large n.
+            let design = (design.n <= keep_design_max_rows()).then(|| Arc::new(design));
             let c_better = better(e.point.bic, self.classical.as_ref().map(|c| c.1));
             let r_better = better(e.point.rbic, self.robust.as_ref().map(|r| r.1));
-            let (c_design, r_design) = match (c_better, r_better) {
-                (true, true) => (Some(Arc::clone(&design)), Some(design)),
-                (true, false) => (Some(design), None),
-                (false, true) => (None, Some(design)),
-                (false, false) => (None, None),
-            };
-            if let Some(d) = r_design {
-                self.robust = Some((i, e.point.rbic.unwrap_or(f64::INFINITY), d, robust.clone(), s_est.clone()));
+            let c_design = if c_better { design.clone() } else { None };
+            let mut robust = Some(robust);
+            if r_better {
+                self.robust =
+                    robust.take().map(|f| (i, e.point.rbic.unwrap_or(f64::INFINITY), design, f, s_est.clone()));
             }
-            if let Some(d) = c_design {
-                self.classical = Some((i, e.point.bic.unwrap_or(f64::INFINITY), d, classical, robust, s_est));
+            let fallback = self.robust.is_none();
+            if c_better {
+                let at_ci = robust.filter(|_| fallback);
+                self.classical = Some((i, e.point.bic.unwrap_or(f64::INFINITY), c_design, classical, at_ci, s_est));
+            } else if !fallback {
+                if let Some(c) = self.classical.as_mut() {
+                    c.4 = None;
+                }
             }
         }
         self.points.push(e.point);
@@ -457,12 +474,27 @@ pub fn select_with_progress(
     let Some((ci, _, classical_design, classical_fit, robust_at_ci, s_at_ci)) = classical else {
         return Err(SelectError::NonePossible(points));
     };
+    // The chosen designs, built again when they were not kept (the same sizes give the same design).
+    let rebuild = |kept: Option<Arc<Design>>, i: usize| -> Result<Arc<Design>, SelectError> {
+        match kept {
+            Some(d) => Ok(d),
+            None => {
+                Design::build_sorted(frame, terms, &points[i].sizes, &sorted).map(Arc::new).map_err(SelectError::Design)
+            }
+        }
+    };
+    let classical_design = rebuild(classical_design, ci)?;
     // No robust criterion anywhere: the robust scale collapsed to zero at every grid point (more than
     // half the rows fitted exactly). The robust fit is then reported at the classical choice.
     let robust_criterion_collapsed = robust.is_none();
     let (ri, robust_design, robust_fit, s_at_point) = match robust {
-        Some((ri, _, d, f, s)) => (ri, d, f, s),
-        None => (ci, Arc::clone(&classical_design), robust_at_ci, s_at_ci),
+        Some((ri, _, d, f, s)) if ri == ci => (ri, d.unwrap_or_else(|| Arc::clone(&classical_design)), f, s),
+        Some((ri, _, d, f, s)) => (ri, rebuild(d, ri)?, f, s),
+        None => match robust_at_ci {
+            Some(f) => (ci, Arc::clone(&classical_design), f, s_at_ci),
+            // Unreachable: the classical best keeps its robust fit while no robust best exists.
+            None => return Err(SelectError::NonePossible(points)),
+        },
     };
     // The reported robust fit: from its converged coefficients, once more with the final QR solve (one
     // reweighting step; the joint Huber fit re-estimates its own scale and always ends with QR).

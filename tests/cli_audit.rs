@@ -223,16 +223,19 @@ fn write_large_study(dir: &Path) -> PathBuf {
 }
 
 #[test]
-fn thread_count_and_simd_do_not_change_a_byte() {
+fn threads_simd_and_design_keeping_do_not_change_a_byte() {
     let d = scratch("threads");
     let spec = write_large_study(&d);
     let s = spec.to_str().unwrap();
-    // t3 also runs the kernels without their AVX2 copies (KNOTWISE_SIMD=0; a no-op on other CPUs).
-    for (threads, simd, out) in [("1", "1", "t1"), ("2", "1", "t2"), ("3", "0", "t3")] {
+    // t3 also runs the kernels without their AVX2 copies (KNOTWISE_SIMD=0; a no-op on other CPUs) and
+    // builds the chosen designs again after the grid instead of keeping them (as large data does).
+    for (threads, simd, keep, out) in [("1", "1", "2000000", "t1"), ("2", "1", "2000000", "t2"), ("3", "0", "0", "t3")]
+    {
         let o = Command::new(env!("CARGO_BIN_EXE_knotwise"))
             .args(["run", s, "--out", out])
             .env("KNOTWISE_THREADS", threads)
             .env("KNOTWISE_SIMD", simd)
+            .env("KNOTWISE_KEEP_DESIGN_ROWS", keep)
             .current_dir(&d)
             .output()
             .unwrap();
@@ -240,7 +243,11 @@ fn thread_count_and_simd_do_not_change_a_byte() {
     }
     for f in ["report.html", "results.json", "rows.csv"] {
         assert_eq!(read(&d.join("t1").join(f)), read(&d.join("t2").join(f)), "{f}: 1 vs 2 threads");
-        assert_eq!(read(&d.join("t1").join(f)), read(&d.join("t3").join(f)), "{f}: 1 vs 3 threads without SIMD");
+        assert_eq!(
+            read(&d.join("t1").join(f)),
+            read(&d.join("t3").join(f)),
+            "{f}: 1 vs 3 threads without SIMD, designs rebuilt"
+        );
     }
     let _ = std::fs::remove_dir_all(&d);
 }
