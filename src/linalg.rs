@@ -1203,6 +1203,41 @@ pub fn predict_rows<R: Rows + ?Sized>(x: &R, coef: &[f64]) -> Vec<f64> {
     out
 }
 
+/// The quadratic forms x_i' M x_i of every row for a symmetric p × p matrix `m` (row-major): with
+/// M = (X'X)⁻¹ these are the hat values. Each row is split as baseline plus deviation (see [`Rows`]),
+/// x'Mx = c'Mc + 2 d'(Mc) + d'Md, so a row costs (its non-zeros)² instead of p². Rows run in
+/// parallel; each value is computed the same way on any thread.
+pub fn quadratic_forms_rows<R: Rows + ?Sized>(x: &R, m: &[f64]) -> Vec<f64> {
+    let (n, p) = (x.n(), x.p());
+    assert_eq!(m.len(), p * p, "linalg::quadratic_forms_rows: m must be p × p");
+    let mut h = vec![0.0; n];
+    fill_blocks(&mut h, |lo, part| {
+        let c = x.baseline(lo, lo + part.len());
+        let mc: Vec<f64> = (0..p).map(|j| dot(&m[j * p..(j + 1) * p], &c)).collect();
+        let cmc = dot(&c, &mc);
+        let mut idx = vec![0usize; p];
+        let mut val = vec![0.0; p];
+        for (k, hk) in part.iter_mut().enumerate() {
+            let nz = x.deviation(lo + k, &c, &mut idx, &mut val);
+            let (idx, val) = (&idx[..nz], &val[..nz]);
+            let mut linear = 0.0;
+            let mut quad = 0.0;
+            for (a, (&ja, &va)) in idx.iter().zip(val).enumerate() {
+                linear += va * mc[ja];
+                let row = &m[ja * p..(ja + 1) * p];
+                // The symmetric sum over pairs: the diagonal once, each off-diagonal pair twice.
+                let mut off = 0.0;
+                for (&jb, &vb) in idx[a + 1..].iter().zip(&val[a + 1..]) {
+                    off += row[jb] * vb;
+                }
+                quad += va * (row[ja] * va + 2.0 * off);
+            }
+            *hk = cmc + 2.0 * linear + quad;
+        }
+    });
+    h
+}
+
 /// Hat values h_i = x_i'(X'X)^-1 x_i from the R factor of an unweighted QR.
 ///
 /// h_i = ||R^-T x_i||², one forward substitution per row (Belsley, Kuh & Welsch 1980, from memory, for

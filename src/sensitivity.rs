@@ -60,9 +60,16 @@ pub struct Leverage {
     pub high: Vec<usize>,
 }
 
-pub fn leverage(design: &Design) -> Result<Leverage, FitError> {
-    let ls = linalg::least_squares_rows(design, &design.y, None)?;
-    let hat = linalg::hat_values_rows(design, &ls.r);
+/// From the design's (X'X)⁻¹ when it is at hand (a fit on the same design has it), otherwise from the
+/// triangular factor of a least-squares solve.
+pub fn leverage(design: &Design, xtx_inverse: Option<&[f64]>) -> Result<Leverage, FitError> {
+    let hat = match xtx_inverse {
+        Some(m) if m.len() == design.p * design.p => linalg::quadratic_forms_rows(design, m),
+        _ => {
+            let ls = linalg::least_squares_rows(design, &design.y, None)?;
+            linalg::hat_values_rows(design, &ls.r)
+        }
+    };
     let threshold = 2.0 * design.p as f64 / design.n as f64;
     let high = hat.iter().enumerate().filter(|(_, h)| **h > threshold).map(|(i, _)| i).collect();
     Ok(Leverage { hat, threshold, high })
@@ -220,7 +227,7 @@ pub fn analyse(
     let expected_false = expected_false_flags(n, cutoff);
     let boxplot = boxplot(&scaled);
     let t = crate::robust::profile::stage(|| "sensitivity: leverage".into());
-    let leverage = leverage(rd)?;
+    let leverage = leverage(rd, Some(&rf.xtx_inverse))?;
     drop(t);
     let keep: Vec<usize> = {
         let mut is_flagged = vec![false; n];

@@ -1,6 +1,7 @@
 //! The blocked kernels (a design's fixed row layout, `linalg::Rows::layout`) against the generic
 //! sparse kernels on the same design: every sum must agree bit for bit, since the blocked path is a
-//! speed path only. Invented data (a seeded generator); the outside references for the fits
+//! speed path only; and the hat values from (X'X)⁻¹ against their R-factor evaluation (to rounding).
+//! Invented data (a seeded generator); the outside references for the fits
 //! themselves are in fit_reference.rs and robust_reference.rs.
 
 mod common;
@@ -134,5 +135,16 @@ fn blocked_kernels_agree_bit_for_bit_with_the_generic_ones() {
         same_bits(e1.entries(), e2.entries(), "Newton system");
         same_bits(&[o1], &[o2], "objective");
         same_bits(&w1, &w2, "curvatures");
+
+        // Hat values from (X'X)⁻¹ through the baseline split agree with the R-factor evaluation and
+        // sum to p (trace of the hat matrix).
+        let ls = linalg::least_squares_rows(&design, y, None).unwrap();
+        let by_factor = linalg::hat_values_rows(&design, &ls.r);
+        let by_inverse = linalg::quadratic_forms_rows(&design, &ls.xtx_inverse());
+        for (a, b) in by_inverse.iter().zip(&by_factor) {
+            assert!((a - b).abs() <= 1e-10 * b.abs().max(1.0 / n as f64), "hat value {a} vs {b}");
+        }
+        let trace: f64 = by_inverse.iter().sum();
+        assert!((trace - p as f64).abs() < 1e-8 * p as f64, "trace {trace} vs p = {p}");
     }
 }

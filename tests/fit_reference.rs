@@ -121,11 +121,15 @@ fn leverage_and_leave_one_out_influence() {
     let reference = json("tests/reference/fit/fit_reference.json");
     let design = Design::build(&stackloss_frame(&reference), &stackloss_terms(), &[]).unwrap();
     let f = fit::classical(&design).unwrap();
-    let lev = knotwise::sensitivity::leverage(&design).unwrap();
-    let sum: f64 = lev.hat.iter().sum();
-    assert_close(sum, design.p as f64, 1e-10, "hat values sum to p");
-    for (got, want) in lev.hat.iter().zip(vecf(&reference["stackloss"]["hat"])) {
-        assert_close(*got, want, 1e-10, "hat values vs statsmodels get_influence().hat_matrix_diag");
+    // Both ways of computing them: from (X'X)⁻¹ (as the pipeline does) and from the R factor.
+    let by_factor = knotwise::sensitivity::leverage(&design, None).unwrap();
+    let lev = knotwise::sensitivity::leverage(&design, Some(&f.xtx_inverse)).unwrap();
+    for l in [&lev, &by_factor] {
+        let sum: f64 = l.hat.iter().sum();
+        assert_close(sum, design.p as f64, 1e-10, "hat values sum to p");
+        for (got, want) in l.hat.iter().zip(vecf(&reference["stackloss"]["hat"])) {
+            assert_close(*got, want, 1e-10, "hat values vs statsmodels get_influence().hat_matrix_diag");
+        }
     }
     let ls = knotwise::linalg::qr_solve_rows(&design, &design.y, None).unwrap();
     let inv = ls.xtx_inverse();
