@@ -125,9 +125,11 @@ pub fn results(a: &Analysis, inputs: &Inputs) -> Results {
             termination: s.termination,
         });
     }
-    let without = sens.classical_without.as_ref().map(|(d, f)| {
-        let mut o = fit_out("least-squares-qr", "squared", None, d, f, &curves_of(d, f));
+    let without = sens.classical_without.as_ref().map(|f| {
+        // Curves and names from the full classical design (the subset has the same encodings).
+        let mut o = fit_out("least-squares-qr", "squared", None, cd, f, &curves_of(cd, f));
         o.method = "least-squares-qr-without-flagged".into();
+        o.n = f.residuals.len();
         o
     });
     let robust_without = sens.robust_without.as_ref().map(|f| {
@@ -343,8 +345,7 @@ pub fn write_rows_csv(a: &Analysis, out: &mut dyn std::io::Write) -> std::io::Re
         flagged[i] = true;
     }
     // The refit without flagged rows predicts every row (same encoding), so its columns are full.
-    let without_pred: Option<Vec<f64>> =
-        sens.classical_without.as_ref().map(|(_, f)| sel.classical_design.predict(&f.coef));
+    let without_pred: Option<Vec<f64>> = sens.classical_without.as_ref().map(|f| sel.classical_design.predict(&f.coef));
     let mut w = csv::WriterBuilder::new().terminator(csv::Terminator::Any(b'\n')).from_writer(Vec::new());
     let mut header =
         vec!["row", "line", "observed", "classical-fitted", "classical-residual", "robust-fitted", "robust-residual"];

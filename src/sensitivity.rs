@@ -185,8 +185,9 @@ pub struct Sensitivity {
     pub expected_false: f64,
     pub boxplot: Boxplot,
     pub leverage: Leverage,
-    /// Classical refit without flagged rows at the classical chosen sizes.
-    pub classical_without: Option<(Design, Fit)>,
+    /// Classical refit without flagged rows at the classical chosen sizes (on the subset of the
+    /// classical design: same columns and encodings, `residuals.len()` rows).
+    pub classical_without: Option<Fit>,
     /// Classical criterion rerun without flagged rows over the same grid points.
     pub rerun_points: Vec<GridPoint>,
     pub rerun_choice: Option<usize>,
@@ -282,19 +283,19 @@ pub fn analyse(
                 (0..grid_points.len()).map(evaluate).collect()
             };
         }
+        // The subset designs live only for the two refits (the fits are kept; their curves and
+        // names come from the full designs, which have the same encodings).
         let sub = cd.subset(&keep);
-        if let Ok(f) = fit::classical(&sub) {
-            classical_without = Some((sub, f));
-        }
+        let sub_fit = fit::classical(&sub).ok().map(|f| (sub, f));
         // The robust refit reuses the classical subset when both fits chose the same sizes.
         let same = cd.sizes == rd.sizes;
         let rsub_own = if same { None } else { Some(rd.subset(&keep)) };
-        let rsub = match (&rsub_own, &classical_without) {
+        let rsub = match (&rsub_own, &sub_fit) {
             (Some(d), _) => d,
             (None, Some((d, _))) => d,
             (None, None) => &cd.subset(&keep),
         };
-        let xtx = classical_without.as_ref().filter(|_| same).map(|(_, f)| f.xtx_inverse.as_slice());
+        let xtx = sub_fit.as_ref().filter(|_| same).map(|(_, f)| f.xtx_inverse.as_slice());
         if let Ok(f) = fit::robust_with_xtx(rsub, method, Some(&rf.coef), rf.scale, irls, xtx) {
             let lin = linear_columns(rd);
             let mv = lin
@@ -304,6 +305,7 @@ pub fn analyse(
             robust_move = Some(mv);
             robust_without = Some(f);
         }
+        classical_without = sub_fit.map(|(_, f)| f);
         rerun_choice = rerun_points
             .iter()
             .enumerate()
@@ -318,7 +320,7 @@ pub fn analyse(
         .iter()
         .map(|&j| {
             let pick = |f: &Fit| Some((f.coef[j], f.std_errors[j], f.lower[j], f.upper[j], f.significant(j)));
-            let values = vec![pick(cf), pick(rf), classical_without.as_ref().and_then(|(_, f)| pick(f))];
+            let values = vec![pick(cf), pick(rf), classical_without.as_ref().and_then(pick)];
             let present: Vec<CoefficientSummary> = values.iter().flatten().copied().collect();
             let sign_changes = present.iter().any(|v| v.0 > 0.0) && present.iter().any(|v| v.0 < 0.0);
             let significance_changes = present.iter().any(|v| v.4) && present.iter().any(|v| !v.4);
@@ -331,7 +333,7 @@ pub fn analyse(
         let grid = fit::curve_grid(rd, t, 200);
         let robust_curve = fit::curve(rd, rf, t, &grid);
         let classical_curve = fit::curve(cd, cf, t, &grid);
-        let without = classical_without.as_ref().map(|(d, f)| fit::curve(d, f, t, &grid));
+        let without = classical_without.as_ref().map(|f| fit::curve(cd, f, t, &grid));
         let mut half: Vec<f64> =
             robust_curve.upper.iter().zip(&robust_curve.lower).map(|(u, l)| (u - l) / 2.0).collect();
         half.sort_by(|a, b| a.total_cmp(b));
