@@ -105,7 +105,8 @@ pub struct Fit {
     pub std_errors: Vec<f64>,
     pub lower: Vec<f64>,
     pub upper: Vec<f64>,
-    pub fitted: Vec<f64>,
+    /// y − fitted for every design row (the fitted values are `fitted_at`: not stored, since a fit on
+    /// ten million rows would carry another 80 MB for them).
     pub residuals: Vec<f64>,
     /// σ̂: RSS/(n − p) square-rooted (classical) or the robust scale.
     pub scale: f64,
@@ -122,6 +123,16 @@ pub struct Fit {
 }
 
 impl Fit {
+    /// The fitted value of row i of the design the fit was made on (`y` its response): y_i − r_i.
+    pub fn fitted_at(&self, y: &[f64], i: usize) -> f64 {
+        y[i] - self.residuals[i]
+    }
+
+    /// All fitted values (see [`Fit::fitted_at`]).
+    pub fn fitted(&self, y: &[f64]) -> Vec<f64> {
+        y.iter().zip(&self.residuals).map(|(y, r)| y - r).collect()
+    }
+
     /// Whether coefficient j's 95% interval excludes zero.
     pub fn significant(&self, j: usize) -> bool {
         self.lower[j] > 0.0 || self.upper[j] < 0.0
@@ -161,7 +172,6 @@ fn assemble(design: &Design, s: Solved) -> Fit {
             r
         }
     };
-    let fitted = design.y.iter().zip(&residuals).map(|(y, r)| y - r).collect();
     let rss = residuals.iter().map(|r| r * r).sum::<f64>();
     let tss = total_sum_of_squares(&design.y);
     let r_squared = if tss > 0.0 { 1.0 - rss / tss } else { 1.0 };
@@ -171,7 +181,6 @@ fn assemble(design: &Design, s: Solved) -> Fit {
         std_errors,
         lower,
         upper,
-        fitted,
         residuals,
         scale: s.scale,
         termination: s.termination,

@@ -380,7 +380,7 @@ pub fn write_rows_csv(a: &Analysis, out: &mut dyn std::io::Write) -> std::io::Re
                 }
                 .ok();
                 let _ = w.write_field(line);
-                for v in [y, cf.fitted[i], cf.residuals[i], rf.fitted[i], rf.residuals[i]] {
+                for v in [y, y - cf.residuals[i], cf.residuals[i], y - rf.residuals[i], rf.residuals[i]] {
                     field(&mut w, v);
                 }
                 if let Some(p) = &without_pred {

@@ -424,7 +424,7 @@ pub fn select_with_progress(
             let mm = fit::robust_with_xtx(&design, plan.method, Some(&s.coef), s.scale, &plan.irls, xtx)
                 .map_err(|e| SelectError::Fit(e, sizes.clone()))?;
             ev.shared_scale = Some(s.scale);
-            ev.anchor = Some(mm.fitted.clone());
+            ev.anchor = Some(mm.fitted(&design.y));
             scale_source = sizes.clone();
             s_richest = Some(s);
             break;

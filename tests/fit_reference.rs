@@ -60,7 +60,7 @@ fn classical_fit_matches_statsmodels_ols_on_the_same_design() {
             assert_close(f.std_errors[j], *want, 1e-8, "std error vs statsmodels OLS bse");
         }
         for (i, want) in vecf(&case["fitted_first10"]).iter().enumerate() {
-            assert_close(f.fitted[i], *want, 1e-8, "fitted value vs statsmodels OLS");
+            assert_close(f.fitted_at(&design.y, i), *want, 1e-8, "fitted value vs statsmodels OLS");
         }
         assert_close(f.rss, case["rss"].as_f64().unwrap(), 1e-8, "RSS vs statsmodels OLS");
         assert_close(f.r_squared, case["r2"].as_f64().unwrap(), 1e-8, "R² vs statsmodels OLS");
@@ -177,7 +177,7 @@ fn least_squares_invariances() {
     }
     let scaled = fit::classical(&Design::build(&frame2, &terms, &[5, 5]).unwrap()).unwrap();
     for i in 0..base.n {
-        assert_close(scaled.fitted[i], f.fitted[i], 1e-10, "fitted values after rescaling x1");
+        assert_close(scaled.fitted_at(&base.y, i), f.fitted_at(&base.y, i), 1e-10, "fitted values after rescaling x1");
     }
 
     // Reordering rows leaves coefficients unchanged.

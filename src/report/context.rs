@@ -1209,7 +1209,7 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
     let mut figures = Vec::new();
 
     // 7.1 scaled residuals against fitted values.
-    let (p, f) = split(&|i| (rf.fitted[i], scaled[i]));
+    let (p, f) = split(&|i| (rf.fitted_at(&a.selection.robust_design.y, i), scaled[i]));
     let mut layers = points_layers(p, f, "row");
     layers.push(Layer {
         kind: LayerKind::HLines { ys: vec![-cutoff, cutoff], dashed: true },
