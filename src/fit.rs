@@ -108,6 +108,8 @@ pub struct Fit {
     /// y − fitted for every design row (the fitted values are `fitted_at`: not stored, since a fit on
     /// ten million rows would carry another 80 MB for them).
     pub residuals: Vec<f64>,
+    /// Rows the fit was estimated from: all design rows, or those with a positive prior weight.
+    pub rows_used: usize,
     /// σ̂: RSS/(n − p) square-rooted (classical) or the robust scale.
     pub scale: f64,
     pub termination: Termination,
@@ -144,6 +146,19 @@ fn total_sum_of_squares(y: &[f64]) -> f64 {
     y.iter().map(|v| (v - mean) * (v - mean)).sum()
 }
 
+/// The values of `v` on the rows with a positive prior (all of them without one).
+fn kept_values(v: &[f64], prior: Option<&[f64]>) -> Vec<f64> {
+    match prior {
+        None => v.to_vec(),
+        Some(q) => v.iter().zip(q).filter(|(_, q)| **q > 0.0).map(|(v, _)| *v).collect(),
+    }
+}
+
+/// Rows with a positive prior weight (all rows without one).
+fn kept_rows(n: usize, prior: Option<&[f64]>) -> usize {
+    prior.map_or(n, |q| q.iter().filter(|v| **v > 0.0).count())
+}
+
 /// What a solver hands over; [`assemble`] derives the rest every fit reports.
 struct Solved {
     coef: Vec<f64>,
@@ -158,8 +173,9 @@ struct Solved {
     residuals: Option<Vec<f64>>,
 }
 
-/// Standard errors, 95% intervals, residuals, fitted values, RSS and R² of a solved fit.
-fn assemble(design: &Design, s: Solved) -> Fit {
+/// Standard errors, 95% intervals, residuals, RSS and R² of a solved fit; with `prior`, RSS and R² are
+/// those of the rows kept (prior > 0), the residuals those of every row.
+fn assemble(design: &Design, s: Solved, prior: Option<&[f64]>) -> Fit {
     let p = design.p;
     let std_errors: Vec<f64> = (0..p).map(|j| s.cov[j * p + j].max(0.0).sqrt()).collect();
     let lower = (0..p).map(|j| s.coef[j] - s.critical * std_errors[j]).collect();
@@ -172,9 +188,15 @@ fn assemble(design: &Design, s: Solved) -> Fit {
             r
         }
     };
-    let rss = residuals.iter().map(|r| r * r).sum::<f64>();
-    let tss = total_sum_of_squares(&design.y);
+    let (rss, tss) = match prior {
+        None => (residuals.iter().map(|r| r * r).sum::<f64>(), total_sum_of_squares(&design.y)),
+        Some(_) => (
+            kept_values(&residuals, prior).iter().map(|r| r * r).sum::<f64>(),
+            total_sum_of_squares(&kept_values(&design.y, prior)),
+        ),
+    };
     let r_squared = if tss > 0.0 { 1.0 - rss / tss } else { 1.0 };
+    let rows_used = kept_rows(design.n, prior);
     Fit {
         coef: s.coef,
         cov: s.cov,
@@ -182,6 +204,7 @@ fn assemble(design: &Design, s: Solved) -> Fit {
         lower,
         upper,
         residuals,
+        rows_used,
         scale: s.scale,
         termination: s.termination,
         weights: s.weights,
@@ -195,11 +218,17 @@ fn assemble(design: &Design, s: Solved) -> Fit {
 
 /// Classical least squares by [`linalg::least_squares_rows`] (refined normal equations or QR); σ̂² = RSS/(n − p); t-based 95% intervals (DESIGN.md §4.2).
 pub fn classical(design: &Design) -> Result<Fit, FitError> {
-    let (n, p) = (design.n, design.p);
+    classical_with_prior(design, None)
+}
+
+/// [`classical`] on the rows with prior weight 1 alone (`prior` 0 or 1 per row), computed on the full
+/// design: the same estimate as on the subset design, with n the number of rows kept.
+pub fn classical_with_prior(design: &Design, prior: Option<&[f64]>) -> Result<Fit, FitError> {
+    let (n, p) = (kept_rows(design.n, prior), design.p);
     if n <= p {
         return Err(FitError::TooFewRows { rows: n, columns: p });
     }
-    let ls = linalg::least_squares_rows(design, &design.y, None)?;
+    let ls = linalg::least_squares_rows(design, &design.y, prior)?;
     let df = (n - p) as f64;
     let sigma2 = ls.rss / df;
     let inv = ls.xtx_inverse();
@@ -218,6 +247,7 @@ pub fn classical(design: &Design) -> Result<Fit, FitError> {
             xtx_inverse: inv,
             residuals: ls.residuals,
         },
+        prior,
     ))
 }
 
@@ -256,25 +286,51 @@ pub fn robust_with_xtx(
     options: &IrlsOptions,
     xtx_inverse: Option<&[f64]>,
 ) -> Result<Fit, FitError> {
-    let (n, p) = (design.n, design.p);
+    robust_with_prior(design, method, start, scale, options, xtx_inverse, None)
+}
+
+/// [`robust_with_xtx`] on the rows with prior weight 1 alone (`prior` 0 or 1 per row), computed on the
+/// full design (see [`irls::m_fixed_scale_rows`]); `xtx_inverse` is then that of the kept rows. The
+/// joint Huber fit has no prior weights: with a prior it is [`FitError::TooFewRows`] (callers fit it on
+/// a subset design instead).
+#[allow(clippy::too_many_arguments)]
+pub fn robust_with_prior(
+    design: &Design,
+    method: RobustMethod,
+    start: Option<&[f64]>,
+    scale: f64,
+    options: &IrlsOptions,
+    xtx_inverse: Option<&[f64]>,
+    prior: Option<&[f64]>,
+) -> Result<Fit, FitError> {
+    let (n, p) = (kept_rows(design.n, prior), design.p);
     if n <= p {
         return Err(FitError::TooFewRows { rows: n, columns: p });
     }
     let loss = method.loss();
-    let est = match method {
-        RobustMethod::HuberJoint { k } => irls::huber_joint_rows(design, &design.y, k, options)?,
+    let est = match (method, prior) {
+        (RobustMethod::HuberJoint { k }, None) => irls::huber_joint_rows(design, &design.y, k, options)?,
+        (RobustMethod::HuberJoint { .. }, Some(_)) => return Err(FitError::TooFewRows { rows: 0, columns: p }),
         _ => {
             let zeros = vec![0.0; p];
             let start = start.unwrap_or(&zeros);
-            irls::m_fixed_scale_rows(design, &design.y, start, scale, loss.as_ref(), options)?
+            irls::m_fixed_scale_rows(design, &design.y, start, scale, loss.as_ref(), prior, options)?
         }
     };
     let inv = match xtx_inverse {
         Some(inv) if inv.len() == p * p => inv.to_vec(),
-        _ => linalg::least_squares_rows(design, &design.y, None)?.xtx_inverse(),
+        _ => linalg::least_squares_rows(design, &design.y, prior)?.xtx_inverse(),
     };
     let cov = if est.scale > 0.0 {
-        sandwich::huber_sandwich(n, p, &est.residuals, est.scale, loss.as_ref(), &inv)?
+        let kept;
+        let residuals = match prior {
+            None => &est.residuals,
+            Some(_) => {
+                kept = kept_values(&est.residuals, prior);
+                &kept
+            }
+        };
+        sandwich::huber_sandwich(n, p, residuals, est.scale, loss.as_ref(), &inv)?
     } else {
         vec![0.0; p * p]
     };
@@ -292,6 +348,7 @@ pub fn robust_with_xtx(
             xtx_inverse: inv,
             residuals: Some(est.residuals),
         },
+        prior,
     ))
 }
 

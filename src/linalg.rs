@@ -881,18 +881,20 @@ impl NormalEquations {
 /// One IRLS pass in a single sweep over the rows: the residuals r = y − Xb into `r`, the weights
 /// w_i = weight(r_i) into `w`, and the normal equations at those weights, each row's deviation read
 /// once. Blocks as in [`normal_solve`]; the same answer for any thread count. A non-finite residual,
-/// a negative or non-finite weight, or non-finite rows give [`LinalgError::NonFinite`].
+/// a negative or non-finite weight, or non-finite rows give [`LinalgError::NonFinite`]. With `prior`,
+/// row i's weight is weight(r_i)·prior_i (a zero prior leaves the row out; see [`newton_sweep`]).
 pub fn reweight<R: Rows + ?Sized>(
     x: &R,
     y: &[f64],
     coef: &[f64],
     weight: &(dyn Fn(f64) -> f64 + Sync),
+    prior: Option<&[f64]>,
     r: &mut [f64],
     w: &mut [f64],
 ) -> Result<NormalEquations, LinalgError> {
     let p = x.p();
-    let terms = |ri: f64, yi: f64| {
-        let wi = weight(ri);
+    let terms = |i: usize, ri: f64, yi: f64| {
+        let wi = weight(ri) * prior.map_or(1.0, |q| q[i]);
         (wi.is_finite() && wi >= 0.0).then_some((wi, wi * yi, 0.0))
     };
     let (eq, _) = sweep(x, y, coef, &terms, r, w)?;
@@ -909,29 +911,37 @@ pub fn reweight<R: Rows + ?Sized>(
 /// g = s·ψ(r/s), the solution of the system is the Newton step for the coefficients of the M-estimate
 /// with scale s. d may be negative or zero (a row with d = 0 still adds g x_i). A non-finite residual,
 /// term or row gives [`LinalgError::NonFinite`].
+///
+/// `prior` (0 or 1 per row, or any non-negative case weights) multiplies each row's terms: a row with
+/// prior 0 adds nothing, so the sweep is that of the rows kept, on the full matrix (its residual is
+/// still written). A prior of 1 leaves the terms exactly as they are.
 pub fn newton_sweep<R: Rows + ?Sized>(
     x: &R,
     y: &[f64],
     coef: &[f64],
     terms: &(dyn Fn(f64) -> (f64, f64, f64) + Sync),
+    prior: Option<&[f64]>,
     r: &mut [f64],
     d: &mut [f64],
 ) -> Result<(NormalEquations, f64), LinalgError> {
-    let terms = |ri: f64, _yi: f64| {
-        let (di, gi, rho) = terms(ri);
+    let terms = |i: usize, ri: f64, _yi: f64| {
+        let (mut di, mut gi, mut rho) = terms(ri);
+        if let Some(q) = prior {
+            (di, gi, rho) = (di * q[i], gi * q[i], rho * q[i]);
+        }
         (di.is_finite() && gi.is_finite() && rho.is_finite()).then_some((di, gi, rho))
     };
     sweep(x, y, coef, &terms, r, d)
 }
 
-/// The shared sweep of [`reweight`] and [`newton_sweep`]: residuals into `r`; `terms(r_i, y_i)` gives
+/// The shared sweep of [`reweight`] and [`newton_sweep`]: residuals into `r`; `terms(i, r_i, y_i)` gives
 /// the matrix weight d_i (stored into `d`), the right-hand-side multiplier g_i and an objective term,
 /// or None for an unusable value; returns [Σ d x x' | Σ g x] and the summed objective.
 fn sweep<R: Rows + ?Sized>(
     x: &R,
     y: &[f64],
     coef: &[f64],
-    terms: &(dyn Fn(f64, f64) -> Option<(f64, f64, f64)> + Sync),
+    terms: &blocked::Terms<'_>,
     r: &mut [f64],
     d: &mut [f64],
 ) -> Result<(NormalEquations, f64), LinalgError> {
@@ -958,7 +968,7 @@ fn sweep<R: Rows + ?Sized>(
             if !ri.is_finite() {
                 return None;
             }
-            let (di, gi, obj) = terms(ri, y[i])?;
+            let (di, gi, obj) = terms(i, ri, y[i])?;
             *rk = ri;
             *dk = di;
             objective += obj;

@@ -129,14 +129,14 @@ pub fn results(a: &Analysis, inputs: &Inputs) -> Results {
         // Curves and names from the full classical design (the subset has the same encodings).
         let mut o = fit_out("least-squares-qr", "squared", None, cd, f, &curves_of(cd, f));
         o.method = "least-squares-qr-without-flagged".into();
-        o.n = f.residuals.len();
+        o.n = f.rows_used;
         o
     });
     let robust_without = sens.robust_without.as_ref().map(|f| {
         let keep_design = rd; // curves use the same encodings
         let mut o =
             fit_out(method_name(m), m.loss_name(), Some(m.tuning()), keep_design, f, &curves_of(keep_design, f));
-        o.n = f.residuals.len();
+        o.n = f.rows_used;
         o
     });
 

@@ -186,7 +186,8 @@ pub struct Sensitivity {
     pub boxplot: Boxplot,
     pub leverage: Leverage,
     /// Classical refit without flagged rows at the classical chosen sizes (on the subset of the
-    /// classical design: same columns and encodings, `residuals.len()` rows).
+    /// classical design with prior weight 0 on the flagged rows: residuals for every row, `rows_used`
+    /// rows kept).
     pub classical_without: Option<Fit>,
     /// Classical criterion rerun without flagged rows over the same grid points.
     pub rerun_points: Vec<GridPoint>,
@@ -283,20 +284,25 @@ pub fn analyse(
                 (0..grid_points.len()).map(evaluate).collect()
             };
         }
-        // The subset designs live only for the two refits (the fits are kept; their curves and
-        // names come from the full designs, which have the same encodings).
-        let sub = cd.subset(&keep);
-        let sub_fit = fit::classical(&sub).ok().map(|f| (sub, f));
-        // The robust refit reuses the classical subset when both fits chose the same sizes.
-        let same = cd.sizes == rd.sizes;
-        let rsub_own = if same { None } else { Some(rd.subset(&keep)) };
-        let rsub = match (&rsub_own, &sub_fit) {
-            (Some(d), _) => d,
-            (None, Some((d, _))) => d,
-            (None, None) => &cd.subset(&keep),
+        // The refits are fits of the kept rows on the full designs, with prior weight 0 on the flagged
+        // rows (no subset design: at ten million rows that would be another gigabyte). The joint
+        // Huber fit has no prior weights and is refitted on a subset design.
+        let prior: Vec<f64> = {
+            let mut q = vec![1.0; n];
+            for &i in &flagged {
+                q[i] = 0.0;
+            }
+            q
         };
-        let xtx = sub_fit.as_ref().filter(|_| same).map(|(_, f)| f.xtx_inverse.as_slice());
-        if let Ok(f) = fit::robust_with_xtx(rsub, method, Some(&rf.coef), rf.scale, irls, xtx) {
+        classical_without = fit::classical_with_prior(cd, Some(&prior)).ok();
+        let same = cd.sizes == rd.sizes;
+        let xtx = classical_without.as_ref().filter(|_| same).map(|f| f.xtx_inverse.as_slice());
+        let refit = if method.needs_s_estimate() {
+            fit::robust_with_prior(rd, method, Some(&rf.coef), rf.scale, irls, xtx, Some(&prior))
+        } else {
+            fit::robust(&rd.subset(&keep), method, Some(&rf.coef), rf.scale, irls)
+        };
+        if let Ok(f) = refit {
             let lin = linear_columns(rd);
             let mv = lin
                 .iter()
@@ -305,7 +311,6 @@ pub fn analyse(
             robust_move = Some(mv);
             robust_without = Some(f);
         }
-        classical_without = sub_fit.map(|(_, f)| f);
         rerun_choice = rerun_points
             .iter()
             .enumerate()

@@ -116,8 +116,8 @@ fn blocked_kernels_agree_bit_for_bit_with_the_generic_ones() {
 
         let weight = |r: f64| 1.0 / (1.0 + r * r);
         let (mut r1, mut w1, mut r2, mut w2) = (vec![0.0; n], vec![0.0; n], vec![0.0; n], vec![0.0; n]);
-        let e1 = linalg::reweight(&design, y, &coef, &weight, &mut r1, &mut w1).unwrap();
-        let e2 = linalg::reweight(&generic, y, &coef, &weight, &mut r2, &mut w2).unwrap();
+        let e1 = linalg::reweight(&design, y, &coef, &weight, None, &mut r1, &mut w1).unwrap();
+        let e2 = linalg::reweight(&generic, y, &coef, &weight, None, &mut r2, &mut w2).unwrap();
         same_bits(e1.entries(), e2.entries(), "reweighted [X'WX | X'Wy]");
         same_bits(&r1, &r2, "residuals");
 
@@ -130,8 +130,8 @@ fn blocked_kernels_agree_bit_for_bit_with_the_generic_ones() {
                 ((1.0 - u * u) * (1.0 - 5.0 * u * u), u * (1.0 - u * u), u * u)
             }
         };
-        let (e1, o1) = linalg::newton_sweep(&design, y, &coef, &terms, &mut r1, &mut w1).unwrap();
-        let (e2, o2) = linalg::newton_sweep(&generic, y, &coef, &terms, &mut r2, &mut w2).unwrap();
+        let (e1, o1) = linalg::newton_sweep(&design, y, &coef, &terms, None, &mut r1, &mut w1).unwrap();
+        let (e2, o2) = linalg::newton_sweep(&generic, y, &coef, &terms, None, &mut r2, &mut w2).unwrap();
         same_bits(e1.entries(), e2.entries(), "Newton system");
         same_bits(&[o1], &[o2], "objective");
         same_bits(&w1, &w2, "curvatures");
@@ -147,4 +147,49 @@ fn blocked_kernels_agree_bit_for_bit_with_the_generic_ones() {
         let trace: f64 = by_inverse.iter().sum();
         assert!((trace - p as f64).abs() < 1e-8 * p as f64, "trace {trace} vs p = {p}");
     }
+}
+
+/// A fit of the kept rows with prior weight 0 on the others, on the full design, is the fit on the
+/// subset design (the sensitivity refits use it to avoid building a second design).
+#[test]
+fn prior_weights_give_the_subset_fit() {
+    use knotwise::fit::{self, RobustMethod};
+    use knotwise::robust::irls::IrlsOptions;
+    let frame = frame();
+    let design = Design::build(&frame, &terms(), &[5, 7, 9]).unwrap();
+    let n = design.n;
+    let prior: Vec<f64> = (0..n).map(|i| if i % 13 == 3 || i % 97 == 0 { 0.0 } else { 1.0 }).collect();
+    let keep: Vec<usize> = (0..n).filter(|&i| prior[i] > 0.0).collect();
+    let sub = design.subset(&keep);
+    let close = |a: f64, b: f64, tol: f64, what: &str| {
+        assert!((a - b).abs() <= tol * b.abs().max(1.0), "{what}: prior {a} vs subset {b}");
+    };
+
+    let a = fit::classical_with_prior(&design, Some(&prior)).unwrap();
+    let b = fit::classical(&sub).unwrap();
+    assert_eq!(a.rows_used, keep.len());
+    assert_eq!(a.residuals.len(), n);
+    for j in 0..design.p {
+        close(a.coef[j], b.coef[j], 1e-11, "classical coefficient");
+        close(a.std_errors[j], b.std_errors[j], 1e-11, "classical std error");
+    }
+    close(a.rss, b.rss, 1e-12, "RSS");
+    close(a.r_squared, b.r_squared, 1e-12, "R²");
+    for (k, &i) in keep.iter().enumerate().step_by(101) {
+        close(a.residuals[i], b.residuals[k], 1e-10, "residual of a kept row");
+    }
+
+    let method = RobustMethod::Mm { c: 4.685 };
+    let opts = IrlsOptions::default();
+    let start = b.coef.clone();
+    let scale = 1.2;
+    let ra = fit::robust_with_prior(&design, method, Some(&start), scale, &opts, None, Some(&prior)).unwrap();
+    let rb = fit::robust(&sub, method, Some(&start), scale, &opts).unwrap();
+    assert!(ra.termination.is_ok() && rb.termination.is_ok());
+    for j in 0..design.p {
+        close(ra.coef[j], rb.coef[j], 1e-9, "MM coefficient");
+        close(ra.std_errors[j], rb.std_errors[j], 1e-8, "MM sandwich std error");
+    }
+    let weights = ra.weights.as_ref().unwrap();
+    assert!(prior.iter().zip(weights).all(|(q, w)| *q > 0.0 || *w == 0.0), "left-out rows have weight 0");
 }

@@ -288,8 +288,9 @@ fn normal_block_plain(
     acc.finish(pad, c)
 }
 
-/// The terms of one row for [`sweep_block`]: (matrix weight, right-hand-side multiplier, objective).
-pub(super) type Terms<'t> = dyn Fn(f64, f64) -> Option<(f64, f64, f64)> + Sync + 't;
+/// The terms of row i (from its index, residual and response) for [`sweep_block`]: (matrix weight,
+/// right-hand-side multiplier, objective), or None for an unusable value.
+pub(super) type Terms<'t> = dyn Fn(usize, f64, f64) -> Option<(f64, f64, f64)> + Sync + 't;
 
 simd_kernel! {
     /// One block of the parent's `sweep`: residuals into `r`, matrix weights into `d`, and the block's
@@ -321,7 +322,7 @@ fn sweep_block_plain(
         if !ri.is_finite() {
             return None;
         }
-        let (di, gi, obj) = terms(ri, y[i])?;
+        let (di, gi, obj) = terms(i, ri, y[i])?;
         *rk = ri;
         *dk = di;
         objective += obj;

@@ -80,16 +80,40 @@ pub fn m_fixed_scale(
     loss: &dyn Loss,
     opts: &IrlsOptions,
 ) -> Result<MEstimate, RobustError> {
-    m_fixed_scale_rows(&Dense::new(x, n, p), y, start, scale, loss, opts)
+    m_fixed_scale_rows(&Dense::new(x, n, p), y, start, scale, loss, None, opts)
 }
 
-/// [`m_fixed_scale`] on any [`Rows`] (the model design's compact rows).
+/// Weights times the prior weights (rows with prior 0 get weight 0).
+fn apply_prior(w: &mut [f64], prior: Option<&[f64]>) {
+    if let Some(q) = prior {
+        for (wi, qi) in w.iter_mut().zip(q) {
+            *wi *= qi;
+        }
+    }
+}
+
+/// The largest change of a residual between two iterates over the rows with a positive prior (all
+/// rows without one).
+fn max_change_kept(a: &[f64], b: &[f64], prior: Option<&[f64]>) -> f64 {
+    match prior {
+        None => max_change(a, b),
+        Some(q) => {
+            a.iter().zip(b).zip(q).filter(|(_, q)| **q > 0.0).fold(0.0f64, |m, ((u, v), _)| m.max((u - v).abs()))
+        }
+    }
+}
+
+/// [`m_fixed_scale`] on any [`Rows`] (the model design's compact rows). With `prior` (0 or 1 per row)
+/// the estimate is that of the rows with prior 1 alone, computed on the full matrix: the rows with
+/// prior 0 add nothing to any sum and get weight 0, and their residuals are reported at the solution.
+#[allow(clippy::too_many_arguments)]
 pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
     x: &R,
     y: &[f64],
     start: &[f64],
     scale: f64,
     loss: &dyn Loss,
+    prior: Option<&[f64]>,
     opts: &IrlsOptions,
 ) -> Result<MEstimate, RobustError> {
     let (n, p) = (x.n(), x.p());
@@ -101,10 +125,12 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
     let mut r = vec![0.0; n];
     if scale <= exact_fit_threshold(y) {
         residuals_rows(x, y, start, &mut r);
+        let mut weights = vec![1.0; n];
+        apply_prior(&mut weights, prior);
         return Ok(MEstimate {
             coef: start.to_vec(),
             residuals: r,
-            weights: vec![1.0; n],
+            weights,
             scale,
             termination: Termination::ScaleCollapsed { iterations: 0 },
         });
@@ -124,7 +150,7 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
         (dpsi, scale * psi, rho)
     };
     let weight = |ri: f64| loss.weight(ri / scale);
-    let (mut system, mut objective) = newton_sweep(x, y, start, &terms, &mut r, &mut w)?;
+    let (mut system, mut objective) = newton_sweep(x, y, start, &terms, prior, &mut r, &mut w)?;
     let mut termination = Termination::IterationLimit { iterations: opts.max_iter };
     let mut last = start.to_vec();
     // After a rejected Newton step, a few IRLS steps before Newton is tried again.
@@ -135,7 +161,7 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
             if let Some(step) = system.clone().cholesky() {
                 let next: Vec<f64> = last.iter().zip(&step).map(|(b, s)| b + s).collect();
                 // A step to non-finite residuals is a failed step like any other (IRLS is tried instead).
-                match newton_sweep(x, y, &next, &terms, &mut r_new, &mut d_new) {
+                match newton_sweep(x, y, &next, &terms, prior, &mut r_new, &mut d_new) {
                     // Rounding can raise Σρ by a few ulps at the minimum; that is not a failed step.
                     Ok((sys, obj)) if obj <= objective + 1e-12 * objective.abs() => taken = Some((next, sys, obj)),
                     Ok(_) | Err(LinalgError::NonFinite) => {}
@@ -151,13 +177,13 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
         let (next, sys, obj) = match taken {
             Some(t) => t,
             None => {
-                let eq = reweight(x, y, &last, &weight, &mut r_new, &mut w)?;
+                let eq = reweight(x, y, &last, &weight, prior, &mut r_new, &mut w)?;
                 let next = eq.solve(x, y, &w)?;
-                let (sys, obj) = newton_sweep(x, y, &next, &terms, &mut r_new, &mut d_new)?;
+                let (sys, obj) = newton_sweep(x, y, &next, &terms, prior, &mut r_new, &mut d_new)?;
                 (next, sys, obj)
             }
         };
-        let moved = max_change(&r, &r_new);
+        let moved = max_change_kept(&r, &r_new, prior);
         std::mem::swap(&mut r, &mut r_new);
         last = next;
         system = sys;
@@ -169,6 +195,7 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
     }
     drop(system);
     weights_into(loss, &r, scale, &mut w);
+    apply_prior(&mut w, prior);
     drop((r_new, d_new));
     if super::profile::enabled() {
         eprintln!("knotwise-profile: irls {termination:?}");
@@ -181,6 +208,7 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
             None => residuals_rows(x, y, &ls.coef, &mut r),
         }
         weights_into(loss, &r, scale, &mut w);
+        apply_prior(&mut w, prior);
         ls.coef
     } else {
         last
