@@ -274,23 +274,13 @@ pub fn robust(
     scale: f64,
     options: &IrlsOptions,
 ) -> Result<Fit, FitError> {
-    robust_with_xtx(design, method, start, scale, options, None)
+    robust_with_prior(design, method, start, scale, options, None, None)
 }
 
-/// [`robust`] reusing (X'X)⁻¹ of the same design (e.g. from its classical fit), saving a least-squares solve.
-pub fn robust_with_xtx(
-    design: &Design,
-    method: RobustMethod,
-    start: Option<&[f64]>,
-    scale: f64,
-    options: &IrlsOptions,
-    xtx_inverse: Option<&[f64]>,
-) -> Result<Fit, FitError> {
-    robust_with_prior(design, method, start, scale, options, xtx_inverse, None)
-}
-
-/// [`robust_with_xtx`] on the rows with prior weight 1 alone (`prior` 0 or 1 per row), computed on the
-/// full design (see [`irls::m_fixed_scale_rows`]); `xtx_inverse` is then that of the kept rows. The
+/// [`robust`] reusing (X'X)⁻¹ of the same design when given (e.g. from its classical fit, saving a
+/// least-squares solve), and with `prior` (0 or 1 per row) on the rows with prior weight 1 alone,
+/// computed on the full design (see [`irls::m_fixed_scale_rows`]); `xtx_inverse` is then that of the
+/// kept rows. The
 /// joint Huber fit has no prior weights: with a prior it is [`FitError::TooFewRows`] (callers fit it on
 /// a subset design instead).
 #[allow(clippy::too_many_arguments)]

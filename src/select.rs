@@ -247,13 +247,14 @@ impl Evaluator<'_> {
         };
         // Grid points are only scored here; the chosen one is re-solved accurately after the search.
         let scoring = IrlsOptions { final_qr: false, ..self.plan.irls.clone() };
-        let robust = fit::robust_with_xtx(
+        let robust = fit::robust_with_prior(
             &design,
             self.plan.method,
             start.as_deref(),
             scale,
             &scoring,
             Some(&classical.xtx_inverse),
+            None,
         )
         .map_err(|e| SelectError::Fit(e, sizes.to_vec()))?;
         let loss = self.plan.method.loss();
@@ -421,7 +422,7 @@ pub fn select_with_progress(
             let Ok(classical) = fit::classical(&design) else { continue };
             let s = fit::s_estimate(&design, &plan.s_options).map_err(|e| SelectError::Fit(e, sizes.clone()))?;
             let xtx = Some(classical.xtx_inverse.as_slice());
-            let mm = fit::robust_with_xtx(&design, plan.method, Some(&s.coef), s.scale, &plan.irls, xtx)
+            let mm = fit::robust_with_prior(&design, plan.method, Some(&s.coef), s.scale, &plan.irls, xtx, None)
                 .map_err(|e| SelectError::Fit(e, sizes.clone()))?;
             ev.shared_scale = Some(s.scale);
             ev.anchor = Some(mm.fitted(&design.y));
@@ -500,8 +501,16 @@ pub fn select_with_progress(
     // reweighting step; the joint Huber fit re-estimates its own scale and always ends with QR).
     let robust_fit = if plan.method.needs_s_estimate() && robust_fit.scale > 0.0 {
         let xtx = Some(robust_fit.xtx_inverse.as_slice());
-        fit::robust_with_xtx(&robust_design, plan.method, Some(&robust_fit.coef), robust_fit.scale, &plan.irls, xtx)
-            .map_err(|e| SelectError::Fit(e, points[ri].sizes.clone()))?
+        fit::robust_with_prior(
+            &robust_design,
+            plan.method,
+            Some(&robust_fit.coef),
+            robust_fit.scale,
+            &plan.irls,
+            xtx,
+            None,
+        )
+        .map_err(|e| SelectError::Fit(e, points[ri].sizes.clone()))?
     } else {
         robust_fit
     };
