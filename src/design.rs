@@ -152,13 +152,21 @@ impl SortedColumns {
     /// The columns are sorted in parallel, one per thread; values equal under `total_cmp` have the
     /// same bits, so the unstable sort gives the one sorted order.
     pub fn new(frame: &Frame, terms: &ModelTerms) -> Result<Self, DesignError> {
+        SortedColumns::of_rows(frame, terms, None)
+    }
+
+    /// The smooth columns of the frame's rows `rows` (all when None), each sorted.
+    pub fn of_rows(frame: &Frame, terms: &ModelTerms, rows: Option<&[usize]>) -> Result<Self, DesignError> {
         let columns = terms
             .smooth
             .iter()
             .map(|s| frame.numeric(&s.column).ok_or_else(|| DesignError::MissingColumn(s.column.clone())))
             .collect::<Result<Vec<_>, _>>()?;
         Ok(SortedColumns(linalg::map_tasks(columns.len(), |j| {
-            let mut sorted = columns[j].to_vec();
+            let mut sorted = match rows {
+                None => columns[j].to_vec(),
+                Some(r) => r.iter().map(|&i| columns[j][i]).collect(),
+            };
             sorted.sort_unstable_by(f64::total_cmp);
             sorted
         })))
@@ -229,8 +237,22 @@ impl Design {
         sizes: &[usize],
         sorted: &SortedColumns,
     ) -> Result<Design, DesignError> {
+        Design::build_sorted_rows(frame, terms, sizes, sorted, None)
+    }
+
+    /// The design of the frame's rows `rows` alone (indices into its used rows, ascending; all when
+    /// None), knots and centring from those rows: the same design, bit for bit, as [`Design::build`] on
+    /// a frame of just those rows, without making that frame. `sorted` holds the smooth columns of
+    /// those rows ([`SortedColumns::of_rows`]).
+    pub fn build_sorted_rows(
+        frame: &Frame,
+        terms: &ModelTerms,
+        sizes: &[usize],
+        sorted: &SortedColumns,
+        rows: Option<&[usize]>,
+    ) -> Result<Design, DesignError> {
         let mut encodings = Vec::with_capacity(terms.smooth.len());
-        let mut rows = Vec::with_capacity(terms.smooth.len());
+        let mut smooth_rows = Vec::with_capacity(terms.smooth.len());
         for ((s, &k), sorted) in terms.smooth.iter().zip(sizes).zip(&sorted.0) {
             let x = frame.numeric(&s.column).ok_or_else(|| DesignError::MissingColumn(s.column.clone()))?;
             let basis = Basis::for_sorted(sorted, s.degree, k, s.knots).map_err(|error| DesignError::Basis {
@@ -238,11 +260,11 @@ impl Design {
                 size: k,
                 error,
             })?;
-            let BasisRows { first, values, sums } = basis_rows(&basis, x, None);
-            encodings.push(SmoothEncoding::from_sums(&s.column, basis, &sums, x.len()));
-            rows.push((first, values));
+            let BasisRows { first, values, sums } = basis_rows(&basis, x, rows);
+            encodings.push(SmoothEncoding::from_sums(&s.column, basis, &sums, rows.map_or(x.len(), <[usize]>::len)));
+            smooth_rows.push((first, values));
         }
-        Design::assemble(frame, terms, encodings, None, Some(rows))
+        Design::assemble(frame, terms, encodings, rows, Some(smooth_rows))
     }
 
     /// Build the design from given smooth encodings (knots and centring fixed), optionally on a subset

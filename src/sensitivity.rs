@@ -244,12 +244,12 @@ pub fn analyse(
     let mut rerun_points = Vec::new();
     let mut rerun_choice = None;
     if refit && !flagged.is_empty() && keep.len() > cd.p {
-        // The rerun first, in its own scope: its copy of the frame and its sorted columns are freed
-        // before the subset designs of the refits are built (one fewer design-sized block at the peak).
+        // The rerun first, in its own scope: its sorted columns and designs are freed before the
+        // refits.
         {
             let _t = crate::robust::profile::stage(|| "sensitivity: rerun of the classical grid".into());
-            let sub_frame = frame_subset(frame, &keep);
-            let sorted = crate::design::SortedColumns::new(&sub_frame, terms);
+            // Designs of the kept rows straight from the frame (no copy of the frame).
+            let sorted = crate::design::SortedColumns::of_rows(frame, terms, Some(&keep));
             // Only the classical criterion is needed at each point, so only the residual sum of squares
             // is computed; the points are independent (see `select::points_in_parallel`).
             let evaluate = |g: usize| {
@@ -265,7 +265,9 @@ pub fn analyse(
                 let built = sorted
                     .as_ref()
                     .map_err(|e| e.clone())
-                    .and_then(|sorted| crate::design::Design::build_sorted(&sub_frame, terms, &gp.sizes, sorted));
+                    .and_then(|sorted| {
+                        crate::design::Design::build_sorted_rows(frame, terms, &gp.sizes, sorted, Some(&keep))
+                    });
                 match built {
                     Ok(d) => {
                         point.p = d.p;
@@ -278,7 +280,7 @@ pub fn analyse(
                 }
                 point
             };
-            rerun_points = if select::points_in_parallel(sub_frame.n_used()) {
+            rerun_points = if select::points_in_parallel(keep.len()) {
                 crate::linalg::map_tasks(grid_points.len(), evaluate)
             } else {
                 (0..grid_points.len()).map(evaluate).collect()
