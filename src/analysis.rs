@@ -2,6 +2,8 @@
 //!
 //! No file is written here; `app` writes what this returns.
 
+use std::sync::Arc;
+
 use crate::data::{Frame, FrameRequest};
 use crate::design::{LinearSpec, ModelTerms, SmoothSpec};
 use crate::error::{Error, Result};
@@ -180,20 +182,47 @@ pub fn analyse_with_progress(
         }
     };
     let _t = crate::robust::profile::stage(|| "sensitivity".into());
-    let sensitivity = sensitivity::analyse(
-        &frame,
-        &terms,
+    let mut selection = selection;
+    let mut sensitivity = sensitivity::analyse(
         (&selection.classical_design, &selection.classical_fit),
         (&selection.robust_design, &selection.robust_fit),
         plan.method,
         &plan.irls,
         study.outliers.cutoff,
-        &selection.points,
-        grid.penalty,
         study.sensitivity.refit_without_flagged,
         study.sensitivity.influence,
     )
     .map_err(|e| fit_error(e, &selection.robust_design.names, spec_display))?;
+    if study.sensitivity.refit_without_flagged {
+        // The rerun builds designs of its own; at large n the chosen designs are released while it
+        // runs and built again after it (the same designs), so that only one is in memory at a time.
+        let release = frame.n_used() > select::keep_design_max_rows();
+        let chosen = (selection.classical_design.sizes.clone(), selection.robust_design.sizes.clone());
+        if release {
+            selection.classical_design = Arc::new(selection.classical_design.subset(&[]));
+            selection.robust_design = Arc::clone(&selection.classical_design);
+        }
+        let (points, choice) = sensitivity::rerun_classical_grid(
+            &frame,
+            &terms,
+            &sensitivity.flagged,
+            selection.classical_design.p,
+            &selection.points,
+            grid.penalty,
+        );
+        sensitivity.rerun_points = points;
+        sensitivity.rerun_choice = choice;
+        if release {
+            let build = |sizes: &[usize]| {
+                crate::design::Design::build(&frame, &terms, sizes)
+                    .map(Arc::new)
+                    .map_err(|e| Error::new(format!("cannot build the design: {e:?}")).at(spec_display))
+            };
+            selection.classical_design = build(&chosen.0)?;
+            selection.robust_design =
+                if chosen.1 == chosen.0 { Arc::clone(&selection.classical_design) } else { build(&chosen.1)? };
+        }
+    }
     Ok(Analysis { study, frame, terms, grid, plan, selection, sensitivity })
 }
 

@@ -324,7 +324,7 @@ type KeptRobust = (usize, f64, Option<Arc<Design>>, Fit, Option<SEstimate>);
 /// the chosen ones are built again after the search, which gives the same design. Below it, keeping
 /// them is cheaper than building them twice. `KNOTWISE_KEEP_DESIGN_ROWS` overrides it (memory and
 /// speed only; the tests run both ways and compare the outputs byte for byte).
-fn keep_design_max_rows() -> usize {
+pub(crate) fn keep_design_max_rows() -> usize {
     static ROWS: std::sync::OnceLock<usize> = std::sync::OnceLock::new();
     *ROWS.get_or_init(|| {
         std::env::var("KNOTWISE_KEEP_DESIGN_ROWS").ok().and_then(|v| v.trim().parse().ok()).unwrap_or(2_000_000)

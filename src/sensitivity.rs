@@ -75,6 +75,65 @@ pub fn leverage(design: &Design, xtx_inverse: Option<&[f64]>) -> Result<Leverage
     Ok(Leverage { hat, threshold, high })
 }
 
+/// The classical criterion rerun over `grid_points` without the `flagged` rows: designs of the kept
+/// rows straight from the frame (knots and centring from those rows), the residual sum of squares
+/// alone at each point; and the point it chooses. Empty when there is nothing to rerun (no flagged
+/// rows, or no more kept rows than `columns`, the chosen design's). Needs no design of the full data.
+pub fn rerun_classical_grid(
+    frame: &Frame,
+    terms: &ModelTerms,
+    flagged: &[usize],
+    columns: usize,
+    grid_points: &[GridPoint],
+    penalty: f64,
+) -> (Vec<GridPoint>, Option<usize>) {
+    let n = frame.n_used();
+    let mut is_flagged = vec![false; n];
+    for &i in flagged {
+        is_flagged[i] = true;
+    }
+    let keep: Vec<usize> = (0..n).filter(|&i| !is_flagged[i]).collect();
+    if flagged.is_empty() || keep.len() <= columns {
+        return (Vec::new(), None);
+    }
+    let _t = crate::robust::profile::stage(|| "sensitivity: rerun of the classical grid".into());
+    let sorted = crate::design::SortedColumns::of_rows(frame, terms, Some(&keep));
+    // Only the classical criterion is needed at each point, so only the residual sum of squares is
+    // computed; the points are independent (see `select::points_in_parallel`).
+    let evaluate = |g: usize| {
+        let gp = &grid_points[g];
+        let mut point =
+            GridPoint { sizes: gp.sizes.clone(), p: 0, bic: None, rbic: None, robust_termination: None, skipped: None };
+        let built = sorted
+            .as_ref()
+            .map_err(|e| e.clone())
+            .and_then(|sorted| crate::design::Design::build_sorted_rows(frame, terms, &gp.sizes, sorted, Some(&keep)));
+        match built {
+            Ok(d) => {
+                point.p = d.p;
+                match fit::classical_rss(&d) {
+                    Ok(rss) => point.bic = Some(select::bic(rss, d.n, d.p, penalty)),
+                    Err(_) => point.skipped = Some("rank deficient without the flagged rows".into()),
+                }
+            }
+            Err(_) => point.skipped = Some("basis impossible without the flagged rows".into()),
+        }
+        point
+    };
+    let points: Vec<GridPoint> = if select::points_in_parallel(keep.len()) {
+        crate::linalg::map_tasks(grid_points.len(), evaluate)
+    } else {
+        (0..grid_points.len()).map(evaluate).collect()
+    };
+    let choice = points
+        .iter()
+        .enumerate()
+        .filter_map(|(i, p)| p.bic.map(|b| (i, b)))
+        .min_by(|a, b| a.1.total_cmp(&b.1))
+        .map(|(i, _)| i);
+    (points, choice)
+}
+
 /// The used rows of `frame` restricted to `keep` (ascending), for reruns without flagged rows.
 pub fn frame_subset(frame: &Frame, keep: &[usize]) -> Frame {
     let columns = frame
@@ -206,17 +265,14 @@ pub fn linear_columns(design: &Design) -> Vec<usize> {
     design.spans.iter().filter(|s| s.kind != TermKind::Smooth).flat_map(|s| s.start..s.start + s.len).collect()
 }
 
-#[allow(clippy::too_many_arguments)]
+/// Flags, fences, leverage, the refits without the flagged rows, the side-by-side coefficients and
+/// curves, influence; the rerun of the grid is [`rerun_classical_grid`].
 pub fn analyse(
-    frame: &Frame,
-    terms: &ModelTerms,
     classical: (&Design, &Fit),
     robust: (&Design, &Fit),
     method: RobustMethod,
     irls: &IrlsOptions,
     cutoff: f64,
-    grid_points: &[GridPoint],
-    penalty: f64,
     refit: bool,
     with_influence: bool,
 ) -> Result<Sensitivity, FitError> {
@@ -241,51 +297,7 @@ pub fn analyse(
     let mut classical_without = None;
     let mut robust_without = None;
     let mut robust_move = None;
-    let mut rerun_points = Vec::new();
-    let mut rerun_choice = None;
     if refit && !flagged.is_empty() && keep.len() > cd.p {
-        // The rerun first, in its own scope: its sorted columns and designs are freed before the
-        // refits.
-        {
-            let _t = crate::robust::profile::stage(|| "sensitivity: rerun of the classical grid".into());
-            // Designs of the kept rows straight from the frame (no copy of the frame).
-            let sorted = crate::design::SortedColumns::of_rows(frame, terms, Some(&keep));
-            // Only the classical criterion is needed at each point, so only the residual sum of squares
-            // is computed; the points are independent (see `select::points_in_parallel`).
-            let evaluate = |g: usize| {
-                let gp = &grid_points[g];
-                let mut point = GridPoint {
-                    sizes: gp.sizes.clone(),
-                    p: 0,
-                    bic: None,
-                    rbic: None,
-                    robust_termination: None,
-                    skipped: None,
-                };
-                let built = sorted
-                    .as_ref()
-                    .map_err(|e| e.clone())
-                    .and_then(|sorted| {
-                        crate::design::Design::build_sorted_rows(frame, terms, &gp.sizes, sorted, Some(&keep))
-                    });
-                match built {
-                    Ok(d) => {
-                        point.p = d.p;
-                        match fit::classical_rss(&d) {
-                            Ok(rss) => point.bic = Some(select::bic(rss, d.n, d.p, penalty)),
-                            Err(_) => point.skipped = Some("rank deficient without the flagged rows".into()),
-                        }
-                    }
-                    Err(_) => point.skipped = Some("basis impossible without the flagged rows".into()),
-                }
-                point
-            };
-            rerun_points = if select::points_in_parallel(keep.len()) {
-                crate::linalg::map_tasks(grid_points.len(), evaluate)
-            } else {
-                (0..grid_points.len()).map(evaluate).collect()
-            };
-        }
         // The refits are fits of the kept rows on the full designs, with prior weight 0 on the flagged
         // rows (no subset design: at ten million rows that would be another gigabyte). The joint
         // Huber fit has no prior weights and is refitted on a subset design.
@@ -313,12 +325,6 @@ pub fn analyse(
             robust_move = Some(mv);
             robust_without = Some(f);
         }
-        rerun_choice = rerun_points
-            .iter()
-            .enumerate()
-            .filter_map(|(i, p)| p.bic.map(|b| (i, b)))
-            .min_by(|a, b| a.1.total_cmp(&b.1))
-            .map(|(i, _)| i);
     }
 
     // Side-by-side linear coefficients (names from the classical design; linear columns coincide).
@@ -394,8 +400,10 @@ pub fn analyse(
         boxplot,
         leverage,
         classical_without,
-        rerun_points,
-        rerun_choice,
+        // Filled by [`rerun_classical_grid`], which the pipeline runs after this (it needs no design of
+        // the full data, so that one can be released for it at large n).
+        rerun_points: Vec::new(),
+        rerun_choice: None,
         robust_without,
         robust_move,
         coefficients,
