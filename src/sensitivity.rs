@@ -63,8 +63,20 @@ pub struct Leverage {
 /// From the design's (X'X)⁻¹ when it is at hand (a fit on the same design has it), otherwise from the
 /// triangular factor of a least-squares solve.
 pub fn leverage(design: &Design, xtx_inverse: Option<&[f64]>) -> Result<Leverage, FitError> {
-    let hat = match xtx_inverse {
-        Some(m) if m.len() == design.p * design.p => linalg::quadratic_forms_rows(design, m),
+    // x'Mx carries rounding of order κ²ε: it is used only when its values are plainly sound (they
+    // lie in [0, 1] and sum to p, the trace of the hat matrix); an ill-conditioned design gets the
+    // R-factor evaluation, whose error is of order κε.
+    let by_inverse = match xtx_inverse {
+        Some(m) if m.len() == design.p * design.p => Some(linalg::quadratic_forms_rows(design, m)),
+        _ => None,
+    };
+    let sound = |h: &[f64]| {
+        let trace: f64 = h.iter().sum();
+        (trace - design.p as f64).abs() <= 1e-7 * design.p as f64
+            && h.iter().all(|v| (-1e-12..=1.0 + 1e-12).contains(v))
+    };
+    let hat = match by_inverse {
+        Some(h) if sound(&h) => h,
         _ => {
             let ls = linalg::least_squares_rows(design, &design.y, None)?;
             linalg::hat_values_rows(design, &ls.r)

@@ -209,3 +209,30 @@ fn rank_deficient_design_names_the_aliased_columns() {
     let e = knotwise::analysis::fit_error(err, &design.names, "study.yaml");
     assert_eq!(e.to_string(), "study.yaml: the design is rank deficient: column `b` is a linear combination of `intercept`, `a`\n  hint: remove one of the aliased terms, or check the data for a column that duplicates another");
 }
+
+#[test]
+fn leverage_of_an_ill_conditioned_design_comes_from_the_factor() {
+    // A covariate around 1e8 with unit spread: (X'X)⁻¹ has rounding of order κ²ε ≈ 1, so hat values
+    // from it would be noise; the pipeline's check sends such a design to the R-factor evaluation.
+    let mut g = Lcg(5);
+    let z: Vec<f64> = (0..200).map(|_| 1e8 + g.normal()).collect();
+    let y: Vec<f64> = z.iter().map(|v| 0.5 * (v - 1e8) + g.normal()).collect();
+    let frame = numeric_frame(&[("y", y), ("z", z)]);
+    let terms = knotwise::design::ModelTerms {
+        response: "y".into(),
+        linear: vec![knotwise::design::LinearSpec { column: "z".into(), categorical: false }],
+        smooth: vec![],
+    };
+    let design = Design::build(&frame, &terms, &[]).unwrap();
+    let f = fit::classical(&design).unwrap();
+    let by_factor = knotwise::sensitivity::leverage(&design, None).unwrap();
+    let lev = knotwise::sensitivity::leverage(&design, Some(&f.xtx_inverse)).unwrap();
+    // The quadratic forms themselves are off here (the case the check exists for).
+    let raw = knotwise::linalg::quadratic_forms_rows(&design, &f.xtx_inverse);
+    assert!(raw.iter().zip(&by_factor.hat).any(|(a, b)| (a - b).abs() > 1e-6), "x'Mx was accurate after all");
+    let sum: f64 = by_factor.hat.iter().sum();
+    assert_close(sum, 2.0, 1e-6, "hat values sum to p");
+    for (a, b) in lev.hat.iter().zip(&by_factor.hat) {
+        assert_close(*a, *b, 1e-6, "hat value with (X'X)⁻¹ offered vs from the factor");
+    }
+}

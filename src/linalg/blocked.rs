@@ -237,9 +237,11 @@ macro_rules! simd_kernel {
         pub(super) fn $name($($arg: $ty),*) -> $ret {
             #[cfg(target_arch = "x86_64")]
             if avx2() {
+                /// # Safety
+                /// Only on a CPU with AVX2 (an `unsafe fn`, which `target_feature` needs before Rust 1.86).
                 #[target_feature(enable = "avx2")]
                 #[allow(clippy::too_many_arguments)]
-                fn with_avx2($($arg: $ty),*) -> $ret {
+                unsafe fn with_avx2($($arg: $ty),*) -> $ret {
                     $plain($($arg),*)
                 }
                 // SAFETY: the CPU supports AVX2 (checked by `avx2`); the copy differs from `$plain`

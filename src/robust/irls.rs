@@ -123,7 +123,15 @@ pub fn m_fixed_scale_rows<R: Rows + ?Sized>(
         return Err(RobustError::NonFinite);
     }
     let mut r = vec![0.0; n];
-    if scale <= exact_fit_threshold(y) {
+    // The exact-fit test on the rows kept (as a fit on just those rows would make it).
+    let threshold = match prior {
+        None => exact_fit_threshold(y),
+        Some(q) => {
+            let largest = y.iter().zip(q).filter(|(_, q)| **q > 0.0).fold(0.0f64, |a, (v, _)| a.max(v.abs()));
+            exact_fit_threshold(&[largest])
+        }
+    };
+    if scale <= threshold {
         residuals_rows(x, y, start, &mut r);
         let mut weights = vec![1.0; n];
         apply_prior(&mut weights, prior);
