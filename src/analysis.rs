@@ -196,8 +196,8 @@ pub fn analyse_with_progress(
     if study.sensitivity.refit_without_flagged {
         // The rerun builds designs of its own; at large n the chosen designs are released while it
         // runs and built again after it (the same designs), so that only one is in memory at a time.
-        let rerun_needed = !sensitivity.flagged.is_empty()
-            && frame.n_used() - sensitivity.flagged.len() > selection.classical_design.p;
+        let rerun_needed =
+            sensitivity::without_flagged_applies(frame.n_used(), &sensitivity.flagged, selection.classical_design.p);
         let release = rerun_needed && frame.n_used() > select::keep_design_max_rows();
         let chosen = (selection.classical_design.sizes.clone(), selection.robust_design.sizes.clone());
         if release {

@@ -485,7 +485,7 @@ impl Rows for Design {
     }
     fn layout(&self) -> Option<linalg::Layout<'_>> {
         let mut layout = linalg::Layout { singles: Vec::new(), singles_end: 1, runs: Vec::new() };
-        for (s, span) in self.store.iter().zip(&self.spans[1..]) {
+        for (s, term) in self.store.iter().zip(&self.spans[1..]) {
             match s {
                 Store::Numeric { col, values } => {
                     layout.singles.push(linalg::Single::Value { col: *col, values });
@@ -502,7 +502,7 @@ impl Rows for Design {
                 return None;
             }
             if layout.runs.is_empty() {
-                layout.singles_end = span.start + span.len;
+                layout.singles_end = term.start + term.len;
             }
         }
         Some(layout)

@@ -146,12 +146,9 @@ fn total_sum_of_squares(y: &[f64]) -> f64 {
     y.iter().map(|v| (v - mean) * (v - mean)).sum()
 }
 
-/// The values of `v` on the rows with a positive prior (all of them without one).
-fn kept_values(v: &[f64], prior: Option<&[f64]>) -> Vec<f64> {
-    match prior {
-        None => v.to_vec(),
-        Some(q) => v.iter().zip(q).filter(|(_, q)| **q > 0.0).map(|(v, _)| *v).collect(),
-    }
+/// The values of `v` on the rows with a positive prior.
+fn kept_values(v: &[f64], prior: &[f64]) -> Vec<f64> {
+    v.iter().zip(prior).filter(|(_, q)| **q > 0.0).map(|(v, _)| *v).collect()
 }
 
 /// Rows with a positive prior weight (all rows without one).
@@ -190,9 +187,9 @@ fn assemble(design: &Design, s: Solved, prior: Option<&[f64]>) -> Fit {
     };
     let (rss, tss) = match prior {
         None => (residuals.iter().map(|r| r * r).sum::<f64>(), total_sum_of_squares(&design.y)),
-        Some(_) => (
-            kept_values(&residuals, prior).iter().map(|r| r * r).sum::<f64>(),
-            total_sum_of_squares(&kept_values(&design.y, prior)),
+        Some(q) => (
+            kept_values(&residuals, q).iter().map(|r| r * r).sum::<f64>(),
+            total_sum_of_squares(&kept_values(&design.y, q)),
         ),
     };
     let r_squared = if tss > 0.0 { 1.0 - rss / tss } else { 1.0 };
@@ -280,9 +277,8 @@ pub fn robust(
 /// [`robust`] reusing (X'X)⁻¹ of the same design when given (e.g. from its classical fit, saving a
 /// least-squares solve), and with `prior` (0 or 1 per row) on the rows with prior weight 1 alone,
 /// computed on the full design (see [`irls::m_fixed_scale_rows`]); `xtx_inverse` is then that of the
-/// kept rows. The
-/// joint Huber fit has no prior weights: with a prior it is [`FitError::TooFewRows`] (callers fit it on
-/// a subset design instead).
+/// kept rows. The joint Huber fit, whose MAD step has no prior weights, runs on the kept rows' own
+/// design instead; its residuals and weights are then spread back to every row (weight 0 off it).
 #[allow(clippy::too_many_arguments)]
 pub fn robust_with_prior(
     design: &Design,
@@ -300,7 +296,19 @@ pub fn robust_with_prior(
     let loss = method.loss();
     let est = match (method, prior) {
         (RobustMethod::HuberJoint { k }, None) => irls::huber_joint_rows(design, &design.y, k, options)?,
-        (RobustMethod::HuberJoint { .. }, Some(_)) => return Err(FitError::TooFewRows { rows: 0, columns: p }),
+        (RobustMethod::HuberJoint { k }, Some(q)) => {
+            let keep: Vec<usize> = (0..design.n).filter(|&i| q[i] > 0.0).collect();
+            let sub = design.subset(&keep);
+            let mut est = irls::huber_joint_rows(&sub, &sub.y, k, options)?;
+            let mut residuals = vec![0.0; design.n];
+            linalg::residuals_rows(design, &design.y, &est.coef, &mut residuals);
+            let mut weights = vec![0.0; design.n];
+            for (&i, w) in keep.iter().zip(&est.weights) {
+                weights[i] = *w;
+            }
+            (est.residuals, est.weights) = (residuals, weights);
+            est
+        }
         _ => {
             let zeros = vec![0.0; p];
             let start = start.unwrap_or(&zeros);
@@ -315,8 +323,8 @@ pub fn robust_with_prior(
         let kept;
         let residuals = match prior {
             None => &est.residuals,
-            Some(_) => {
-                kept = kept_values(&est.residuals, prior);
+            Some(q) => {
+                kept = kept_values(&est.residuals, q);
                 &kept
             }
         };

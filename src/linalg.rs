@@ -220,10 +220,10 @@ pub trait Rows: Sync {
         let p = self.p();
         let hi = lo + out.len();
         let c = self.baseline(lo, hi);
-        let cb = dot(&c, coef);
         if let Some((layout, pad)) = blocked_layout(self) {
             return blocked::dot_block(&layout, &pad, coef, lo, out, &c);
         }
+        let cb = dot(&c, coef);
         let mut idx = vec![0usize; p];
         let mut val = vec![0.0; p];
         for (k, o) in out.iter_mut().enumerate() {
@@ -953,11 +953,11 @@ fn sweep<R: Rows + ?Sized>(
             return None;
         }
         let c = x.baseline(lo, hi);
-        let cb = dot(&c, coef);
-        let mut objective = 0.0;
         if let Some((layout, pad)) = blocked_layout(x) {
             return blocked::sweep_block(&layout, &pad, y, coef, terms, lo, r, d, &c);
         }
+        let cb = dot(&c, coef);
+        let mut objective = 0.0;
         let mut acc = NormalAcc::new(p);
         let mut idx = vec![0usize; p];
         let mut val = vec![0.0; p];

@@ -87,6 +87,12 @@ pub fn leverage(design: &Design, xtx_inverse: Option<&[f64]>) -> Result<Leverage
     Ok(Leverage { hat, threshold, high })
 }
 
+/// Whether the fits without the `flagged` rows (distinct indices among `n`) are made: some rows are
+/// flagged and more than `columns` remain.
+pub fn without_flagged_applies(n: usize, flagged: &[usize], columns: usize) -> bool {
+    !flagged.is_empty() && n.saturating_sub(flagged.len()) > columns
+}
+
 /// The classical criterion rerun over `grid_points` without the `flagged` rows: designs of the kept
 /// rows straight from the frame (knots and centring from those rows), the residual sum of squares
 /// alone at each point; and the point it chooses. Empty when there is nothing to rerun (no flagged
@@ -100,14 +106,14 @@ pub fn rerun_classical_grid(
     penalty: f64,
 ) -> (Vec<GridPoint>, Option<usize>) {
     let n = frame.n_used();
+    if !without_flagged_applies(n, flagged, columns) {
+        return (Vec::new(), None);
+    }
     let mut is_flagged = vec![false; n];
     for &i in flagged {
         is_flagged[i] = true;
     }
     let keep: Vec<usize> = (0..n).filter(|&i| !is_flagged[i]).collect();
-    if flagged.is_empty() || keep.len() <= columns {
-        return (Vec::new(), None);
-    }
     let _t = crate::robust::profile::stage(|| "sensitivity: rerun of the classical grid".into());
     let sorted = crate::design::SortedColumns::of_rows(frame, terms, Some(&keep));
     // Only the classical criterion is needed at each point, so only the residual sum of squares is
@@ -146,7 +152,7 @@ pub fn rerun_classical_grid(
     (points, choice)
 }
 
-/// The used rows of `frame` restricted to `keep` (ascending), for reruns without flagged rows.
+/// The used rows of `frame` restricted to `keep` (ascending): a frame of just those rows.
 pub fn frame_subset(frame: &Frame, keep: &[usize]) -> Frame {
     let columns = frame
         .columns
@@ -256,9 +262,8 @@ pub struct Sensitivity {
     pub expected_false: f64,
     pub boxplot: Boxplot,
     pub leverage: Leverage,
-    /// Classical refit without flagged rows at the classical chosen sizes (on the subset of the
-    /// classical design with prior weight 0 on the flagged rows: residuals for every row, `rows_used`
-    /// rows kept).
+    /// Classical refit without flagged rows at the classical chosen sizes (on the classical design
+    /// with prior weight 0 on the flagged rows: residuals for every row, `rows_used` rows kept).
     pub classical_without: Option<Fit>,
     /// Classical criterion rerun without flagged rows over the same grid points.
     pub rerun_points: Vec<GridPoint>,
@@ -299,20 +304,12 @@ pub fn analyse(
     let t = crate::robust::profile::stage(|| "sensitivity: leverage".into());
     let leverage = leverage(rd, Some(&rf.xtx_inverse))?;
     drop(t);
-    let keep: Vec<usize> = {
-        let mut is_flagged = vec![false; n];
-        for &i in &flagged {
-            is_flagged[i] = true;
-        }
-        (0..n).filter(|&i| !is_flagged[i]).collect()
-    };
     let mut classical_without = None;
     let mut robust_without = None;
     let mut robust_move = None;
-    if refit && !flagged.is_empty() && keep.len() > cd.p {
+    if refit && without_flagged_applies(n, &flagged, cd.p) {
         // The refits are fits of the kept rows on the full designs, with prior weight 0 on the flagged
-        // rows (no subset design: at ten million rows that would be another gigabyte). The joint
-        // Huber fit has no prior weights and is refitted on a subset design.
+        // rows (no subset design: at ten million rows that would be another gigabyte).
         let prior: Vec<f64> = {
             let mut q = vec![1.0; n];
             for &i in &flagged {
@@ -323,12 +320,7 @@ pub fn analyse(
         classical_without = fit::classical_with_prior(cd, Some(&prior)).ok();
         let same = cd.sizes == rd.sizes;
         let xtx = classical_without.as_ref().filter(|_| same).map(|f| f.xtx_inverse.as_slice());
-        let refit = if method.needs_s_estimate() {
-            fit::robust_with_prior(rd, method, Some(&rf.coef), rf.scale, irls, xtx, Some(&prior))
-        } else {
-            fit::robust(&rd.subset(&keep), method, Some(&rf.coef), rf.scale, irls)
-        };
-        if let Ok(f) = refit {
+        if let Ok(f) = fit::robust_with_prior(rd, method, Some(&rf.coef), rf.scale, irls, xtx, Some(&prior)) {
             let lin = linear_columns(rd);
             let mv = lin
                 .iter()

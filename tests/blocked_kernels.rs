@@ -192,4 +192,17 @@ fn prior_weights_give_the_subset_fit() {
     }
     let weights = ra.weights.as_ref().unwrap();
     assert!(prior.iter().zip(weights).all(|(q, w)| *q > 0.0 || *w == 0.0), "left-out rows have weight 0");
+
+    // The joint Huber fit runs on the kept rows' own design: the subset fit, spread back to all rows.
+    let huber = RobustMethod::HuberJoint { k: 1.345 };
+    let ha = fit::robust_with_prior(&design, huber, None, 0.0, &opts, None, Some(&prior)).unwrap();
+    let hb = fit::robust(&sub, huber, None, 0.0, &opts).unwrap();
+    same_bits(&ha.coef, &hb.coef, "joint Huber coefficients");
+    // (X'X)⁻¹ of the kept rows is summed over the full design's row blocks here: rounding level.
+    for (a, b) in ha.std_errors.iter().zip(&hb.std_errors) {
+        close(*a, *b, 1e-12, "joint Huber std error");
+    }
+    assert_eq!((ha.rows_used, ha.residuals.len()), (keep.len(), n));
+    let kept: Vec<f64> = keep.iter().map(|&i| ha.residuals[i]).collect();
+    same_bits(&kept, &hb.residuals, "joint Huber residuals of the kept rows");
 }

@@ -203,16 +203,6 @@ impl BlockedAcc {
     }
 }
 
-/// dst[k] += v[k] · s for a 4-wide strip (the product in that order, as X'v sums write it).
-#[inline(always)]
-fn strip_scaled(dst: &mut [f64], v: &[f64; RUN_WIDTH], s: f64) {
-    if let Ok(dst) = <&mut [f64; RUN_WIDTH]>::try_from(dst) {
-        for (d, vk) in dst.iter_mut().zip(v) {
-            *d += vk * s;
-        }
-    }
-}
-
 /// dst[k] += wd · v[k] for a 4-wide strip (fixed length, so the compiler keeps it in vector registers).
 #[inline(always)]
 fn strip(dst: &mut [f64], wd: f64, v: &[f64; RUN_WIDTH]) {
@@ -373,7 +363,8 @@ fn residual_block_plain(
             padded[j] += v * wr;
         }
         for &(_, _, pc, v) in &row.runs[..row.nr] {
-            strip_scaled(&mut padded[pc..pc + RUN_WIDTH], &v, wr);
+            // wr·v[k]: the same bits as the generic kernel's v[k]·wr (IEEE multiplication commutes).
+            strip(&mut padded[pc..pc + RUN_WIDTH], wr, &v);
         }
     }
     let mut acc: Vec<f64> = pad.map.iter().map(|&m| padded[m]).collect();
