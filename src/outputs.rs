@@ -328,13 +328,15 @@ pub fn digest(results: &Results) -> String {
     provenance::sha256_hex(&bytes)
 }
 
-/// Row blocks formatted together before they are written (about 260 000 rows, some 50 MB of text).
-const ROWS_PER_WAVE_BLOCKS: usize = 64;
+/// Row blocks formatted together before they are written (about 130 000 rows, some 25 MB of text).
+const ROWS_PER_WAVE_BLOCKS: usize = 32;
 
-/// rows.csv (one row per used data row) written to `out` as it is formatted, so the whole text never sits in memory: waves of row
-/// blocks are formatted on the worker threads (one CSV writer per block, so quoting is the writer's
-/// own) and written in block order, the same bytes for any thread count.
-pub fn write_rows_csv(a: &Analysis, out: &mut dyn std::io::Write) -> std::io::Result<()> {
+/// rows.csv (one row per used data row) written to `out` as it is formatted, so the whole text never
+/// sits in memory: waves of row blocks are formatted on the worker threads (one CSV writer per block,
+/// so quoting is the writer's own) and written in block order, the same bytes for any thread count.
+/// A wave is written (and hashed, when `out` hashes) on a thread of its own while the next one is
+/// formatted; at most three waves are in memory at once (one written, one handed over, one formatted).
+pub fn write_rows_csv(a: &Analysis, out: &mut (dyn std::io::Write + Send)) -> std::io::Result<()> {
     let sel = &a.selection;
     let sens = &a.sensitivity;
     let rf = &sel.robust_fit;
@@ -359,47 +361,61 @@ pub fn write_rows_csv(a: &Analysis, out: &mut dyn std::io::Write) -> std::io::Re
     let weights = rf.weights.as_deref().unwrap_or(&[]);
     let block_rows = crate::linalg::BLOCK_ROWS;
     let wave_rows = block_rows * ROWS_PER_WAVE_BLOCKS;
-    for wave_lo in (0..n).step_by(wave_rows) {
-        let wave_n = wave_rows.min(n - wave_lo);
-        let blocks = crate::linalg::map_blocks(wave_n, |lo, hi| {
-            let mut w = csv::WriterBuilder::new().terminator(csv::Terminator::Any(b'\n')).from_writer(Vec::new());
-            let mut buf = String::new();
-            let mut field = |w: &mut csv::Writer<Vec<u8>>, v: f64| {
-                buf.clear();
-                num_into(&mut buf, v);
-                let _ = w.write_field(buf.as_bytes());
-            };
-            for i in wave_lo + lo..wave_lo + hi {
-                let y = sel.robust_design.y[i];
-                let mut line = itoa::Buffer::new();
-                let line = line.format(a.frame.lines[i]);
-                // The row's name is its id, or (no id column) its source line, as `Frame::row_name`.
-                match a.frame.ids.get(i) {
-                    Some(id) => w.write_field(id),
-                    None => w.write_field(line),
+    std::thread::scope(|scope| {
+        // A rendezvous channel: the formatting side waits until the writer takes the wave it holds.
+        let (to_writer, waves) = std::sync::mpsc::sync_channel::<Vec<Vec<u8>>>(0);
+        let writer = scope.spawn(move || -> std::io::Result<()> {
+            for blocks in waves {
+                for block in blocks {
+                    out.write_all(&block)?;
                 }
-                .ok();
-                let _ = w.write_field(line);
-                for v in [y, y - cf.residuals[i], cf.residuals[i], y - rf.residuals[i], rf.residuals[i]] {
-                    field(&mut w, v);
-                }
-                if let Some(p) = &without_pred {
-                    field(&mut w, p[i]);
-                    field(&mut w, y - p[i]);
-                }
-                field(&mut w, weights.get(i).copied().unwrap_or(f64::NAN));
-                field(&mut w, if rf.scale > 0.0 { rf.residuals[i] / rf.scale } else { f64::NAN });
-                let _ = w.write_field(if flagged[i] { "yes" } else { "no" });
-                field(&mut w, sens.leverage.hat[i]);
-                let _ = w.write_record(None::<&[u8]>);
             }
-            w.into_inner().unwrap_or_default()
+            Ok(())
         });
-        for block in blocks {
-            out.write_all(&block)?;
+        for wave_lo in (0..n).step_by(wave_rows) {
+            let wave_n = wave_rows.min(n - wave_lo);
+            let blocks = crate::linalg::map_blocks(wave_n, |lo, hi| {
+                let mut w = csv::WriterBuilder::new().terminator(csv::Terminator::Any(b'\n')).from_writer(Vec::new());
+                let mut buf = String::new();
+                let mut field = |w: &mut csv::Writer<Vec<u8>>, v: f64| {
+                    buf.clear();
+                    num_into(&mut buf, v);
+                    let _ = w.write_field(buf.as_bytes());
+                };
+                for i in wave_lo + lo..wave_lo + hi {
+                    let y = sel.robust_design.y[i];
+                    let mut line = itoa::Buffer::new();
+                    let line = line.format(a.frame.lines[i]);
+                    // The row's name is its id, or (no id column) its source line, as `Frame::row_name`.
+                    match a.frame.ids.get(i) {
+                        Some(id) => w.write_field(id),
+                        None => w.write_field(line),
+                    }
+                    .ok();
+                    let _ = w.write_field(line);
+                    for v in [y, y - cf.residuals[i], cf.residuals[i], y - rf.residuals[i], rf.residuals[i]] {
+                        field(&mut w, v);
+                    }
+                    if let Some(p) = &without_pred {
+                        field(&mut w, p[i]);
+                        field(&mut w, y - p[i]);
+                    }
+                    field(&mut w, weights.get(i).copied().unwrap_or(f64::NAN));
+                    field(&mut w, if rf.scale > 0.0 { rf.residuals[i] / rf.scale } else { f64::NAN });
+                    let _ = w.write_field(if flagged[i] { "yes" } else { "no" });
+                    field(&mut w, sens.leverage.hat[i]);
+                    let _ = w.write_record(None::<&[u8]>);
+                }
+                w.into_inner().unwrap_or_default()
+            });
+            // A failed write ends the writer, and so the channel: its error is returned below.
+            if to_writer.send(blocks).is_err() {
+                break;
+            }
         }
-    }
-    Ok(())
+        drop(to_writer);
+        writer.join().unwrap_or_else(|_| Err(std::io::Error::other("the rows.csv writer stopped unexpectedly")))
+    })
 }
 
 /// Whether any fit failed to converge (for `--strict`).
