@@ -40,7 +40,7 @@ pub struct Boxplot {
 
 pub fn boxplot(values: &[f64]) -> Boxplot {
     let mut s = values.to_vec();
-    s.sort_by(|a, b| a.total_cmp(b));
+    s.sort_unstable_by(f64::total_cmp);
     let q1 = quantile_sorted(&s, 0.25);
     let median = quantile_sorted(&s, 0.5);
     let q3 = quantile_sorted(&s, 0.75);

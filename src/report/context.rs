@@ -631,26 +631,29 @@ fn data_section(a: &Analysis, r: &Results) -> DataCtx {
     };
     let mut numeric = Vec::new();
     let mut categorical = Vec::new();
-    for c in &a.frame.columns {
+    // The numeric columns' sorted values, one column per worker thread at a time (an unstable sort:
+    // values equal under `total_cmp` have the same bits, so there is one sorted order).
+    let sorted_numeric = crate::linalg::map_tasks(a.frame.columns.len(), |j| match &a.frame.columns[j].data {
+        ColumnData::Numeric(v) => {
+            let mut s: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
+            s.sort_unstable_by(f64::total_cmp);
+            let q = |p: f64| if s.is_empty() { None } else { Some(quantile7(&s, p)) };
+            [q(0.0), q(0.25), q(0.5), q(0.75), q(1.0)]
+        }
+        ColumnData::Categorical { .. } => [None; 5],
+    });
+    for (c, quantiles) in a.frame.columns.iter().zip(sorted_numeric) {
         match &c.data {
-            ColumnData::Numeric(v) => {
-                let mut s: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
-                s.sort_by(|x, y| x.total_cmp(y));
-                let q = |p: f64| {
-                    if s.is_empty() {
-                        DASH.to_string()
-                    } else {
-                        sig(quantile7(&s, p), 4)
-                    }
-                };
+            ColumnData::Numeric(_) => {
+                let q = |k: usize| quantiles[k].map_or_else(|| DASH.to_string(), |v| sig(v, 4));
                 numeric.push(NumericSummary {
                     column: c.name.clone(),
                     role: role(&c.name),
-                    min: q(0.0),
-                    q1: q(0.25),
-                    median: q(0.5),
-                    q3: q(0.75),
-                    max: q(1.0),
+                    min: q(0),
+                    q1: q(1),
+                    median: q(2),
+                    q3: q(3),
+                    max: q(4),
                 });
             }
             ColumnData::Categorical { levels, reference, counts, .. } => {
@@ -983,7 +986,7 @@ fn smooth_section(a: &Analysis, r: &Results, flagged: &[bool]) -> Result<SmoothC
             }
         }
         let mut sorted: Vec<f64> = x.iter().copied().filter(|v| v.is_finite()).collect();
-        sorted.sort_by(|p, q| p.total_cmp(q));
+        sorted.sort_unstable_by(f64::total_cmp);
         let rug: Vec<f64> = plots::thin(sorted.len(), MAX_RUG, &[]).into_iter().map(|i| sorted[i]).collect();
         let curve_of = |f: Option<&FitOut>| {
             f.and_then(|f| f.smooth.iter().find(|s| s.column == column)).map(|s| {
@@ -1235,7 +1238,8 @@ fn diagnostics_section(a: &Analysis, r: &Results, scaled: &[f64], flagged: &[boo
 
     // 7.2 normal QQ plot, plotting positions (i − 0.5)/n.
     let mut order: Vec<usize> = (0..n).filter(|&i| scaled[i].is_finite()).collect();
-    order.sort_by(|&x, &y| scaled[x].total_cmp(&scaled[y]).then(x.cmp(&y)));
+    // Ties are broken by row, so the unstable sort has one result.
+    order.sort_unstable_by(|&x, &y| scaled[x].total_cmp(&scaled[y]).then(x.cmp(&y)));
     let m = order.len();
     let flagged_sorted: Vec<bool> = (0..m).map(|j| flagged.get(order[j]).copied().unwrap_or(false)).collect();
     let mut q_idx = plots::thin(m, MAX_POINTS, &flagged_sorted);
